@@ -1,0 +1,59 @@
+"""Parsing user-typed quantities: ``5008.9MHz``, ``1.42 GHz``, ``-5`` (bare numbers take a default unit)."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+
+import astropy.units as u
+
+from speccat.errors import FilterError
+
+
+def parse_quantity(text: str, default_unit: u.UnitBase, what: str) -> u.Quantity:
+    """Parse ``text`` as a number with an optional unit convertible to ``default_unit``.
+
+    Raises FilterError naming ``what`` (e.g. "--freq") when the text is not a finite quantity
+    of the right physical type.
+    """
+    raw = text.strip()
+    if not raw or len(raw) > 64:
+        raise FilterError(f"{what}: expected a number with an optional unit, got {text[:40]!r}")
+    try:
+        value = float(raw)
+        q = value * default_unit
+    except ValueError:
+        try:
+            q = u.Quantity(raw)
+        except (TypeError, ValueError):
+            raise FilterError(f"{what}: cannot read {text[:40]!r} as a quantity") from None
+        if q.unit == u.dimensionless_unscaled:
+            q = q.value * default_unit
+    try:
+        q = q.to(default_unit)
+    except u.UnitConversionError:
+        raise FilterError(f"{what}: {text[:40]!r} is not in units of {default_unit}") from None
+    if not math.isfinite(float(q.value)):
+        raise FilterError(f"{what}: {text[:40]!r} is not a finite number")
+    return q
+
+
+def parse_frequency_hz(text: str, what: str = "frequency") -> float:
+    """A frequency in Hz; bare numbers are MHz (DESIGN.md)."""
+    return float(parse_quantity(text, u.MHz, what).to_value(u.Hz))
+
+
+def parse_range(
+    text: str, parse: Callable[[str], float], what: str
+) -> tuple[float | None, float | None]:
+    """Parse ``MIN:MAX`` where either side may be empty; ``parse`` turns one side into a float."""
+    if text.count(":") != 1:
+        raise FilterError(f"{what}: expected MIN:MAX (either side may be empty), got {text[:40]!r}")
+    lo_text, hi_text = text.split(":")
+    lo = parse(lo_text) if lo_text.strip() else None
+    hi = parse(hi_text) if hi_text.strip() else None
+    if lo is not None and hi is not None and lo > hi:
+        raise FilterError(
+            f"{what}: the minimum {lo_text.strip()} is above the maximum {hi_text.strip()}"
+        )
+    return lo, hi
