@@ -1,0 +1,1 @@
+"""speccat's benchmarks: ``python -m benchmarks [--quick|--full]`` prints figures, asserts nothing."""

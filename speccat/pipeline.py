@@ -1,0 +1,359 @@
+"""Ingest a night: discover files -> read, reduce and identify in worker processes -> one writer.
+
+Workers only parse and compute; they never touch the archive (a pooled connection must not cross
+a fork). The single writer in the calling process stores each file in its own transaction, so a
+file is all in or all out, and a killed ingest can simply be run again.
+"""
+
+from __future__ import annotations
+
+import getpass
+import hashlib
+import os
+import platform
+import time
+from collections import Counter
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from dataclasses import dataclass, field, replace
+from datetime import datetime, timedelta
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from speccat import __version__
+from speccat.config import Settings
+from speccat.errors import SpeccatError
+from speccat.model import Detection, FileResult, SpectrumResult
+
+if TYPE_CHECKING:
+    from speccat.archive import Archive
+    from speccat.catalogue import Catalogue
+
+
+# --------------------------------------------------------------------------- discovery
+
+
+def _has_suffix(name: str) -> bool:
+    from speccat.io import SUFFIXES
+
+    low = name.lower()
+    return any(low.endswith(s) for s in SUFFIXES)
+
+
+def discover(paths: Iterable[str | Path]) -> tuple[list[str], list[tuple[str, str]]]:
+    """Every spectrum file under ``paths`` (sorted, unique) and the paths that cannot be used.
+
+    Folders are walked recursively without following symbolic links to folders (so a link loop
+    cannot trap the walk); a named file is taken whatever its suffix.
+    """
+    found: dict[str, None] = {}
+    problems: list[tuple[str, str]] = []
+    for raw in paths:
+        p = Path(raw)
+        if p.is_dir():
+            for root, dirs, files in os.walk(p, followlinks=False):
+                dirs.sort()
+                for name in sorted(files):
+                    if _has_suffix(name):
+                        found[str(Path(root) / name)] = None
+                for name in dirs:
+                    if _has_suffix(name):
+                        problems.append((str(Path(root) / name), "is a folder, not a file"))
+        elif p.is_file():
+            found[str(p)] = None
+        elif p.is_symlink():
+            problems.append((str(p), "broken or looping symbolic link"))
+        else:
+            problems.append((str(p), "no such file or folder"))
+    return list(found), problems
+
+
+def file_digest(path: str) -> tuple[int, str]:
+    """Size in bytes and SHA-256 (hex) of a file, read in 1 MiB blocks."""
+    h = hashlib.sha256()
+    size = 0
+    with open(path, "rb") as fh:
+        while block := fh.read(1 << 20):
+            h.update(block)
+            size += len(block)
+    return size, h.hexdigest()
+
+
+# --------------------------------------------------------------------------- one file
+
+
+@dataclass
+class _WorkerState:
+    settings: Settings
+    known_velocities: dict[str, float]
+    catalogue: Catalogue | None = None
+
+
+_STATE: _WorkerState | None = None
+
+
+def _init_worker(settings: Settings, known_velocities: dict[str, float]) -> None:
+    global _STATE
+    _STATE = _WorkerState(settings, dict(known_velocities))
+
+
+def _catalogue(state: _WorkerState) -> Catalogue:
+    if state.catalogue is None:
+        from speccat.catalogue import load
+
+        state.catalogue = load(state.settings.catalogue or None)
+    return state.catalogue
+
+
+def add_zeeman(result: SpectrumResult) -> SpectrumResult:
+    """Fit the line-of-sight field for identified HI/OH lines when Stokes I and V are both present."""
+    from speccat.physics.zeeman import SPLIT_HZ_PER_UG, fit_zeeman
+
+    spec = result.spectrum
+    if "V" not in spec.intensity or "I" not in spec.intensity:
+        return result
+    stokes_i = spec.intensity["I"] - result.measurement.baseline.evaluate()
+    dets: list[Detection] = []
+    changed = False
+    for det in result.detections:
+        split = SPLIT_HZ_PER_UG.get(det.line.name) if det.line is not None else None
+        if split is None:
+            dets.append(det)
+            continue
+        half = max(3.0, 1.5 * det.fit.fwhm_chan)
+        lo = max(0, int(det.fit.center_chan - half))
+        hi = min(spec.n_channels, int(det.fit.center_chan + half) + 1)
+        fit = fit_zeeman(spec.freq_hz, stokes_i, spec.intensity["V"], slice(lo, hi), split)
+        if fit is None:
+            dets.append(det)
+            continue
+        dets.append(replace(det, b_los_ug=fit[0], b_los_err_ug=fit[1]))
+        changed = True
+    return replace(result, detections=tuple(dets)) if changed else result
+
+
+def measure_file(
+    path: str,
+    settings: Settings,
+    catalogue: Catalogue,
+    known_velocities: Mapping[str, float] | None = None,
+) -> list[SpectrumResult]:
+    """Read, reduce and identify every spectrum of one file (raises SpeccatError on bad input)."""
+    from speccat.identify import identify
+    from speccat.io import read
+    from speccat.reduce import ReduceSettings, measure
+
+    reduce_settings = ReduceSettings(detect_sigma=settings.detect_sigma)
+    results = []
+    for spectrum in read(path):
+        stokes = spectrum.primary_stokes
+        m = measure(spectrum.freq_hz, spectrum.intensity[stokes], reduce_settings, stokes=stokes)
+        result = identify(
+            spectrum,
+            m,
+            catalogue,
+            known_velocities=known_velocities,
+            threshold=settings.id_threshold,
+            vel_window_kms=settings.vel_window_kms,
+        )
+        results.append(add_zeeman(result))
+    return results
+
+
+def process_file(path: str, settings: Settings | None = None) -> FileResult:
+    """One file end to end, for a worker: never raises, a failure becomes ``FileResult.error``."""
+    state = _STATE or _WorkerState(settings or Settings(), {})
+    if settings is not None:
+        state.settings = settings
+    try:
+        size, sha = file_digest(path)
+    except OSError as exc:
+        return FileResult(path, 0, "", error=f"cannot read file ({exc.strerror or exc})")
+    try:
+        spectra = measure_file(path, state.settings, _catalogue(state), state.known_velocities)
+    except SpeccatError as exc:
+        reason = getattr(exc, "reason", None) or str(exc)
+        return FileResult(path, size, sha, error=reason)
+    except Exception as exc:  # a file must never take the ingest down
+        return FileResult(path, size, sha, error=f"internal error: {type(exc).__name__}: {exc}")
+    return FileResult(path, size, sha, spectra=tuple(spectra))
+
+
+# --------------------------------------------------------------------------- the night
+
+
+def night_label(obs_time: datetime) -> str:
+    """The night an observation belongs to: its UTC date shifted back 12 hours (DESIGN.md)."""
+    return (obs_time - timedelta(hours=12)).date().isoformat()
+
+
+def _earliest_time(result: FileResult) -> datetime | None:
+    times = [s.spectrum.obs_time for s in result.spectra if s.spectrum.obs_time is not None]
+    return min(times) if times else None
+
+
+@dataclass
+class IngestSummary:
+    """What one ingest did; ``as_dict`` is the ``--json`` output."""
+
+    run_id: int
+    night: str
+    files_found: int = 0
+    files_stored: int = 0
+    files_skipped: int = 0
+    spectra: int = 0
+    detections: int = 0
+    identified: int = 0
+    per_line: Counter[str] = field(default_factory=Counter)
+    failures: list[tuple[str, str]] = field(default_factory=list)
+    seconds: float = 0.0
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "run_id": self.run_id,
+            "night": self.night,
+            "files_found": self.files_found,
+            "files_stored": self.files_stored,
+            "files_skipped": self.files_skipped,
+            "files_failed": len(self.failures),
+            "spectra": self.spectra,
+            "detections": self.detections,
+            "identified": self.identified,
+            "detections_per_line": dict(sorted(self.per_line.items())),
+            "failures": [{"file": p, "reason": r} for p, r in self.failures],
+            "seconds": round(self.seconds, 3),
+        }
+
+
+ProgressFn = Callable[[int, int, str], None]
+
+
+def _results(
+    paths: list[str], settings: Settings, known: dict[str, float], jobs: int
+) -> Iterator[FileResult]:
+    """FileResults in completion order; at most a few files per worker in flight (flat memory)."""
+    if jobs <= 1 or len(paths) <= 1:
+        _init_worker(settings, known)
+        for p in paths:
+            yield process_file(p)
+        return
+    import multiprocessing as mp
+
+    # forkserver: workers never inherit the writer's open database connections.
+    ctx = mp.get_context("forkserver")
+    pending: set[Future[FileResult]] = set()
+    todo = iter(paths)
+    with ProcessPoolExecutor(jobs, mp_context=ctx, initializer=_init_worker,
+                             initargs=(settings, known)) as pool:
+        for p in todo:
+            pending.add(pool.submit(process_file, p))
+            if len(pending) >= 4 * jobs:
+                break
+        while pending:
+            done, pending = wait(pending, return_when=FIRST_COMPLETED)
+            for fut in done:
+                nxt = next(todo, None)
+                if nxt is not None:
+                    pending.add(pool.submit(process_file, nxt))
+                yield fut.result()
+
+
+def ingest(
+    paths: Iterable[str | Path],
+    archive: Archive,
+    settings: Settings,
+    *,
+    night: str | None = None,
+    jobs: int | None = None,
+    progress: ProgressFn | None = None,
+) -> IngestSummary:
+    """Ingest every spectrum file under ``paths`` into ``archive``; returns the summary.
+
+    Files whose SHA-256 is already archived are skipped unread. Unreadable files are recorded
+    with their reason and never stop the run. Without ``night``, the run's label is derived from
+    the earliest observation of the batch (``night_label``) and applied to every file it stored.
+    """
+    t0 = time.perf_counter()
+    files, problems = discover(paths)
+    n_jobs = jobs or settings.jobs or os.cpu_count() or 1
+    run_id = archive.begin_run(_run_params(settings, paths, night, n_jobs))
+    summary = IngestSummary(run_id=run_id, night=night or "", files_found=len(files))
+    for path, reason in problems:
+        archive.store_failure(run_id, path, reason)
+        summary.failures.append((path, reason))
+    todo = []
+    for path in files:
+        try:
+            _, sha = file_digest(path)
+        except OSError as exc:
+            archive.store_failure(run_id, path, f"cannot read file ({exc.strerror or exc})")
+            summary.failures.append((path, f"cannot read file ({exc.strerror or exc})"))
+            continue
+        if archive.has_sha256(sha):
+            summary.files_skipped += 1
+        else:
+            todo.append(path)
+    if progress:
+        progress(0, len(todo), "")
+    earliest: datetime | None = None
+    provisional = night or "unlabelled"
+    for done, result in enumerate(_results(todo, settings, archive.source_velocities(), n_jobs), 1):
+        if result.error is not None:
+            archive.store_failure(run_id, result.path, result.error)
+            summary.failures.append((result.path, result.error))
+        else:
+            t = _earliest_time(result)
+            if t is not None and (earliest is None or t < earliest):
+                earliest = t
+            label = night or (night_label(t) if t is not None else provisional)
+            if archive.store_file(run_id, result, label):
+                _count(summary, result)
+            else:
+                summary.files_skipped += 1
+        if progress:
+            progress(done, len(todo), result.path)
+    if night is None:
+        summary.night = night_label(earliest) if earliest is not None else provisional
+        if summary.files_stored:
+            archive.relabel_run(run_id, summary.night)
+    archive.update_sources()
+    summary.seconds = time.perf_counter() - t0
+    archive.finish_run(run_id, summary.as_dict())
+    return summary
+
+
+def _count(summary: IngestSummary, result: FileResult) -> None:
+    summary.files_stored += 1
+    for s in result.spectra:
+        summary.spectra += 1
+        for d in s.detections:
+            summary.detections += 1
+            if d.line is not None:
+                summary.identified += 1
+                summary.per_line[d.line.name] += 1
+            else:
+                summary.per_line["(unidentified)"] += 1
+
+
+def _run_params(
+    settings: Settings, paths: Iterable[str | Path], night: str | None, jobs: int
+) -> dict[str, Any]:
+    return {
+        "paths": [str(p) for p in paths],
+        "night": night,
+        "jobs": jobs,
+        "detect_sigma": settings.detect_sigma,
+        "id_threshold": settings.id_threshold,
+        "vel_window_kms": settings.vel_window_kms,
+        "catalogue": settings.catalogue,
+        "user": _user(),
+        "host": platform.node(),
+        "speccat_version": __version__,
+    }
+
+
+def _user() -> str:
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return "unknown"
