@@ -11,8 +11,8 @@ import argparse
 import importlib
 import json
 import os
-import platform
 import pkgutil
+import platform
 import sys
 import time
 from datetime import UTC, datetime
@@ -58,13 +58,28 @@ def main(argv: list[str] | None = None) -> int:
     for r in rows:
         base = r.get("baseline")
         ratio = r.get("ratio")
-        print(f"{r['figure'][:58]:<58} {r['value']:>12.4g} {r.get('unit', ''):<10} "
-              f"{'' if base is None else f'{base:.4g}':>12} {'' if ratio is None else f'{ratio:.3g}':>8}")
+        print(
+            f"{r['figure'][:58]:<58} {r['value']:>12.4g} {r.get('unit', ''):<10} "
+            f"{'' if base is None else f'{base:.4g}':>12} {'' if ratio is None else f'{ratio:.3g}':>8}"
+        )
     if not args.no_save:
-        out = HERE / "results" / f"{datetime.now(UTC).date().isoformat()}-{'quick' if quick else 'full'}.json"
+        out = (
+            HERE
+            / "results"
+            / f"{datetime.now(UTC).date().isoformat()}-{'quick' if quick else 'full'}.json"
+        )
         out.parent.mkdir(exist_ok=True)
-        out.write_text(json.dumps({"machine": machine(), "mode": "quick" if quick else "full",
-                                   "time": datetime.now(UTC).isoformat(), "rows": rows}, indent=1))
+        out.write_text(
+            json.dumps(
+                {
+                    "machine": machine(),
+                    "mode": "quick" if quick else "full",
+                    "time": datetime.now(UTC).isoformat(),
+                    "rows": rows,
+                },
+                indent=1,
+            )
+        )
         print(f"written {out}", file=sys.stderr)
     return 0
 

@@ -41,8 +41,10 @@ def make_night(folder: Path, n_files: int, n_chan: int = 8192, seed: int = 7) ->
     for i in range(n_files):
         v = rng.uniform(-40, 90)
         y = 0.02 * (chan / n_chan - 0.5) + rng.normal(0, 0.01, n_chan)
-        for rest, amp, width_kms in ((H109A_HZ, rng.uniform(0.1, 0.5), 25.0),
-                                     (H109A_HZ * (1 + 122.2 / C_KMS), 0.03, 18.0)):
+        for rest, amp, width_kms in (
+            (H109A_HZ, rng.uniform(0.1, 0.5), 25.0),
+            (H109A_HZ * (1 + 122.2 / C_KMS), 0.03, 18.0),
+        ):
             centre = rest * (1 - v / C_KMS)
             sigma = rest * width_kms / C_KMS / 2.3548
             y += amp * np.exp(-0.5 * ((freq - centre) / sigma) ** 2)
@@ -94,8 +96,10 @@ def obvious_script(paths: list[Path], db: Path) -> float:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 m = fitter(g0, x[sl], resid[sl])
-            con.execute("insert into lines values (?,?,?,?)",
-                        (str(p), m.mean.value, m.amplitude.value, m.stddev.value))
+            con.execute(
+                "insert into lines values (?,?,?,?)",
+                (str(p), m.mean.value, m.amplitude.value, m.stddev.value),
+            )
         con.commit()
     con.close()
     return time.perf_counter() - t0
@@ -106,7 +110,9 @@ def speccat_ingest(folder: Path, db: Path) -> tuple[float, float, dict[str, Any]
     t0 = time.perf_counter()
     out = subprocess.run(
         [sys.executable, "-m", "speccat", "--archive", str(db), "ingest", str(folder), "--json"],
-        capture_output=True, text=True, check=True,
+        capture_output=True,
+        text=True,
+        check=True,
     )
     seconds = time.perf_counter() - t0
     peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
@@ -123,16 +129,38 @@ def run(quick: bool) -> list[dict[str, Any]]:
             floor = floor_read(paths)
             seconds, peak_mb, summary = speccat_ingest(folder, Path(tmp) / "a.sqlite")
             subset = paths[: min(len(paths), 40 if quick else 200)]
-            obvious = obvious_script(subset, Path(tmp) / "obvious.sqlite") * len(paths) / len(subset)
+            obvious = (
+                obvious_script(subset, Path(tmp) / "obvious.sqlite") * len(paths) / len(subset)
+            )
             rows += [
-                {"figure": f"ingest {n} x 8192-ch spectra: spectra/s (cores={os.cpu_count()})",
-                 "value": summary["spectra"] / seconds, "unit": "spectra/s"},
-                {"figure": f"ingest {n}: time vs astropy read floor", "value": seconds, "unit": "s",
-                 "baseline": floor, "ratio": seconds / floor},
-                {"figure": f"ingest {n}: obvious script time / speccat time", "value": seconds,
-                 "unit": "s", "baseline": obvious, "ratio": obvious / seconds},
-                {"figure": f"ingest {n}: peak memory of one process", "value": peak_mb, "unit": "MB"},
-                {"figure": f"ingest {n}: lines found per spectrum",
-                 "value": summary["detections"] / max(summary["spectra"], 1), "unit": "lines"},
+                {
+                    "figure": f"ingest {n} x 8192-ch spectra: spectra/s (cores={os.cpu_count()})",
+                    "value": summary["spectra"] / seconds,
+                    "unit": "spectra/s",
+                },
+                {
+                    "figure": f"ingest {n}: time vs astropy read floor",
+                    "value": seconds,
+                    "unit": "s",
+                    "baseline": floor,
+                    "ratio": seconds / floor,
+                },
+                {
+                    "figure": f"ingest {n}: obvious script time / speccat time",
+                    "value": seconds,
+                    "unit": "s",
+                    "baseline": obvious,
+                    "ratio": obvious / seconds,
+                },
+                {
+                    "figure": f"ingest {n}: peak memory of one process",
+                    "value": peak_mb,
+                    "unit": "MB",
+                },
+                {
+                    "figure": f"ingest {n}: lines found per spectrum",
+                    "value": summary["detections"] / max(summary["spectra"], 1),
+                    "unit": "lines",
+                },
             ]
     return rows

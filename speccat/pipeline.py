@@ -243,8 +243,9 @@ def _results(
     ctx = mp.get_context("forkserver")
     pending: set[Future[FileResult]] = set()
     todo = iter(paths)
-    with ProcessPoolExecutor(jobs, mp_context=ctx, initializer=_init_worker,
-                             initargs=(settings, known)) as pool:
+    with ProcessPoolExecutor(
+        jobs, mp_context=ctx, initializer=_init_worker, initargs=(settings, known)
+    ) as pool:
         for p in todo:
             pending.add(pool.submit(process_file, p))
             if len(pending) >= 4 * jobs:

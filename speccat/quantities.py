@@ -50,8 +50,13 @@ def parse_range(
     if text.count(":") != 1:
         raise FilterError(f"{what}: expected MIN:MAX (either side may be empty), got {text[:40]!r}")
     lo_text, hi_text = text.split(":")
-    lo = parse(lo_text) if lo_text.strip() else None
-    hi = parse(hi_text) if hi_text.strip() else None
+    try:
+        lo = parse(lo_text) if lo_text.strip() else None
+        hi = parse(hi_text) if hi_text.strip() else None
+    except ValueError:
+        raise FilterError(f"{what}: cannot read {text[:40]!r} as MIN:MAX numbers") from None
+    if any(v is not None and not math.isfinite(v) for v in (lo, hi)):
+        raise FilterError(f"{what}: {text[:40]!r} is not a finite range")
     if lo is not None and hi is not None and lo > hi:
         raise FilterError(
             f"{what}: the minimum {lo_text.strip()} is above the maximum {hi_text.strip()}"

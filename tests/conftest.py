@@ -11,7 +11,9 @@ os.environ.setdefault("TEXTUAL_ANIMATIONS", "none")
 
 
 @pytest.fixture(autouse=True)
-def _isolated_environment(monkeypatch: pytest.MonkeyPatch, tmp_path_factory: pytest.TempPathFactory) -> None:
+def _isolated_environment(
+    monkeypatch: pytest.MonkeyPatch, tmp_path_factory: pytest.TempPathFactory
+) -> None:
     """No user config, no archive from the environment, UTC, C locale, fixed numpy seed."""
     cfg = tmp_path_factory.mktemp("xdg")
     monkeypatch.setenv("XDG_CONFIG_HOME", str(cfg))

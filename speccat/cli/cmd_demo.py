@@ -17,15 +17,22 @@ ORDER = 90
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--keep", action="store_true",
-                        help="keep the temporary archive afterwards (its path is printed)")
-    parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: one per core)")
+    parser.add_argument(
+        "--keep",
+        action="store_true",
+        help="keep the temporary archive afterwards (its path is printed)",
+    )
+    parser.add_argument(
+        "--jobs", type=int, metavar="N", help="worker processes (default: one per core)"
+    )
 
 
 def sample_archive_dir() -> Path:
     """The bundled sample night: next to the package in a source checkout, else ./sample_archive."""
-    for candidate in (Path(__file__).resolve().parents[2] / "sample_archive",
-                      Path.cwd() / "sample_archive"):
+    for candidate in (
+        Path(__file__).resolve().parents[2] / "sample_archive",
+        Path.cwd() / "sample_archive",
+    ):
         if candidate.is_dir():
             return candidate
     raise SpeccatError("sample_archive/ not found: run speccat demo from a source checkout")
@@ -48,9 +55,12 @@ def run(args: argparse.Namespace) -> int:
         interactive = sys.stdin.isatty() and sys.stdout.isatty()
         if not interactive:
             print_ingest_summary(summary, str(db))
-            print("(no terminal: showing the summary instead of the browser; "
-                  f"try  speccat --archive {db} browse)" if args.keep else
-                  "(no terminal: showing the summary instead of the browser)")
+            print(
+                "(no terminal: showing the summary instead of the browser; "
+                f"try  speccat --archive {db} browse)"
+                if args.keep
+                else "(no terminal: showing the summary instead of the browser)"
+            )
             return 0
         from speccat.tui.app import make_app
 

@@ -14,12 +14,24 @@ ORDER = 10
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("paths", nargs="+", metavar="PATH", help="files or folders (searched recursively)")
-    parser.add_argument("--night", metavar="LABEL", help="label for this night (default: from the "
-                        "earliest observation, UTC date shifted back 12 hours)")
-    parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: one per core)")
-    parser.add_argument("--catalogue", metavar="FILE", help="extra catalogue file merged with the built-in lines")
-    parser.add_argument("--detect-sigma", type=float, metavar="S", help="line-finding threshold in sigma")
+    parser.add_argument(
+        "paths", nargs="+", metavar="PATH", help="files or folders (searched recursively)"
+    )
+    parser.add_argument(
+        "--night",
+        metavar="LABEL",
+        help="label for this night (default: from the "
+        "earliest observation, UTC date shifted back 12 hours)",
+    )
+    parser.add_argument(
+        "--jobs", type=int, metavar="N", help="worker processes (default: one per core)"
+    )
+    parser.add_argument(
+        "--catalogue", metavar="FILE", help="extra catalogue file merged with the built-in lines"
+    )
+    parser.add_argument(
+        "--detect-sigma", type=float, metavar="S", help="line-finding threshold in sigma"
+    )
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
 
 
@@ -33,18 +45,35 @@ def run(args: argparse.Namespace) -> int:
         from speccat.errors import SpeccatError
 
         raise SpeccatError("--jobs must be at least 1")
-    settings = load_settings({"archive": args.archive, "jobs": args.jobs,
-                              "catalogue": args.catalogue, "detect_sigma": args.detect_sigma})
+    settings = load_settings(
+        {
+            "archive": args.archive,
+            "jobs": args.jobs,
+            "catalogue": args.catalogue,
+            "detect_sigma": args.detect_sigma,
+        }
+    )
     archive = Archive.open(settings.archive, create=True)
     try:
         show_bar = sys.stderr.isatty() and not args.json
         if show_bar:
-            from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
-                                       TimeRemainingColumn)
+            from rich.progress import (
+                BarColumn,
+                MofNCompleteColumn,
+                Progress,
+                TextColumn,
+                TimeRemainingColumn,
+            )
 
-            with Progress(TextColumn("ingesting"), BarColumn(), MofNCompleteColumn(),
-                          TextColumn("{task.fields[rate]}"), TimeRemainingColumn(),
-                          console=console(stderr=True), transient=True) as bar:
+            with Progress(
+                TextColumn("ingesting"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TextColumn("{task.fields[rate]}"),
+                TimeRemainingColumn(),
+                console=console(stderr=True),
+                transient=True,
+            ) as bar:
                 task = bar.add_task("ingest", total=None, rate="")
 
                 def progress(done: int, total: int, path: str) -> None:
@@ -52,8 +81,14 @@ def run(args: argparse.Namespace) -> int:
                     rate = f"{done / elapsed:.1f} files/s" if elapsed > 0 and done else ""
                     bar.update(task, completed=done, total=total, rate=rate)
 
-                summary = ingest(args.paths, archive, settings, night=args.night,
-                                 jobs=args.jobs, progress=progress)
+                summary = ingest(
+                    args.paths,
+                    archive,
+                    settings,
+                    night=args.night,
+                    jobs=args.jobs,
+                    progress=progress,
+                )
         else:
             summary = ingest(args.paths, archive, settings, night=args.night, jobs=args.jobs)
     finally:

@@ -17,11 +17,21 @@ ORDER = 20
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("files", nargs="+", metavar="FILE", help="spectrum files (.fits, .csv, .gz)")
-    parser.add_argument("--format", choices=["table", "json"], default="table",
-                        help="output format (default: table)")
-    parser.add_argument("--catalogue", metavar="FILE", help="extra catalogue file merged with the built-in lines")
-    parser.add_argument("--detect-sigma", type=float, metavar="S", help="line-finding threshold in sigma")
+    parser.add_argument(
+        "files", nargs="+", metavar="FILE", help="spectrum files (.fits, .csv, .gz)"
+    )
+    parser.add_argument(
+        "--format",
+        choices=["table", "json"],
+        default="table",
+        help="output format (default: table)",
+    )
+    parser.add_argument(
+        "--catalogue", metavar="FILE", help="extra catalogue file merged with the built-in lines"
+    )
+    parser.add_argument(
+        "--detect-sigma", type=float, metavar="S", help="line-finding threshold in sigma"
+    )
 
 
 def _num(x: float | None) -> float | None:
@@ -102,8 +112,11 @@ def _print_table(records: list[dict[str, Any]]) -> None:
         return f"{value:{fmt}} ± {err:{fmt}}" if err is not None else f"{value:{fmt}}"
 
     for r in records:
-        where = r["file"] + (f" [hdu {r['hdu']}]" if r["hdu"] else "") + (
-            f" [row {r['row']}]" if r["row"] is not None else "")
+        where = (
+            r["file"]
+            + (f" [hdu {r['hdu']}]" if r["hdu"] else "")
+            + (f" [row {r['row']}]" if r["row"] is not None else "")
+        )
         out.print(f"[bold]{r['source'] or '(no OBJECT)'}[/bold]  {where}")
         frame = r["specsys"] or "frame unknown"
         out.print(
@@ -116,8 +129,17 @@ def _print_table(records: list[dict[str, Any]]) -> None:
             out.print("  no lines above the detection threshold\n")
             continue
         t = Table(show_edge=False, pad_edge=False)
-        for col in ("line", "v_LSR km/s", "peak", "FWHM km/s", "integral ·km/s", "S/N",
-                    "score", "runner-up", "flags"):
+        for col in (
+            "line",
+            "v_LSR km/s",
+            "peak",
+            "FWHM km/s",
+            "integral ·km/s",
+            "S/N",
+            "score",
+            "runner-up",
+            "flags",
+        ):
             t.add_column(col, overflow="fold")
         for ln in r["lines"]:
             name = ln["line"] or f"? {ln['obs_freq_mhz']:.4f} MHz"
@@ -126,12 +148,17 @@ def _print_table(records: list[dict[str, Any]]) -> None:
             extra = list(ln["flags"])
             if ln["b_los_ug"] is not None:
                 extra.append(f"B_los {ln['b_los_ug']:.1f}±{ln['b_los_err_ug']:.1f} µG")
-            t.add_row(name, pm(ln["v_lsr_kms"], ln["v_lsr_err_kms"], ".2f"),
-                      pm(ln["peak"], ln["peak_err"], ".4g"), pm(ln["fwhm_kms"], ln["fwhm_err_kms"], ".2f"),
-                      pm(ln["integral"], ln["integral_err"], ".4g"), f"{ln['snr']:.1f}",
-                      format_cell(ln["id_score"]),
-                      f"{ln['runner_up']} ({ln['runner_up_score']:.2g})" if ln["runner_up"] else "",
-                      ", ".join(extra))
+            t.add_row(
+                name,
+                pm(ln["v_lsr_kms"], ln["v_lsr_err_kms"], ".2f"),
+                pm(ln["peak"], ln["peak_err"], ".4g"),
+                pm(ln["fwhm_kms"], ln["fwhm_err_kms"], ".2f"),
+                pm(ln["integral"], ln["integral_err"], ".4g"),
+                f"{ln['snr']:.1f}",
+                format_cell(ln["id_score"]),
+                f"{ln['runner_up']} ({ln['runner_up_score']:.2g})" if ln["runner_up"] else "",
+                ", ".join(extra),
+            )
         out.print(t)
         out.print()
 
