@@ -140,6 +140,8 @@ class LineFit:
     over the line window. ``lorentz_fwhm_hz`` is set for Voigt fits only. ``w50_hz``/``w20_hz``
     are peak-fraction widths of the data (None when the profile is too weak to define them).
     ``blend`` is the index of the blend group within the spectrum (lines fitted together share it).
+    ``moment1_hz``/``moment2_hz`` are the intensity-weighted mean frequency and dispersion of the
+    data over the summation window (None when the weight sum is not positive).
     """
 
     center_hz: float
@@ -164,6 +166,8 @@ class LineFit:
     w20_hz: float | None = None
     blend: int = 0
     flags: tuple[str, ...] = ()
+    moment1_hz: float | None = None
+    moment2_hz: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
