@@ -196,6 +196,23 @@ class Archive(QueryMixin):
         with self._write() as conn:
             conn.execute(runs.update().where(runs.c.id == run_id).values(values))
 
+    def relabel_run(self, run_id: int, night: str) -> None:
+        """Give every file, spectrum, detection and failure of one run the night ``night``
+        (the pipeline learns the label only after the run's earliest observation is known)."""
+        run_files = select(files.c.id).where(files.c.run_id == run_id)
+        run_spectra = select(spectra.c.id).where(spectra.c.file_id.in_(run_files))
+        with self._write() as conn:
+            conn.execute(
+                detections.update()
+                .where(detections.c.spectrum_id.in_(run_spectra))
+                .values(night=night)
+            )
+            conn.execute(
+                spectra.update().where(spectra.c.file_id.in_(run_files)).values(night=night)
+            )
+            conn.execute(files.update().where(files.c.run_id == run_id).values(night=night))
+            conn.execute(failures.update().where(failures.c.run_id == run_id).values(night=night))
+
     def store_failure(self, run_id: int, path: str, reason: str, night: str | None = None) -> None:
         """Record an unreadable file (for ``report``); nothing else of it is stored."""
         with self._write() as conn:

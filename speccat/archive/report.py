@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections import Counter
 from typing import Any
 
-from sqlalchemy import func, select
+from sqlalchemy import and_, func, or_, select
 from sqlalchemy.engine import Connection
 
 from speccat.archive.records import record_select, to_record
@@ -49,7 +49,15 @@ def build_report(conn: Connection, night: str | None) -> dict[str, Any]:
     ).scalar_one()
     fail_rows = conn.execute(
         select(failures.c.path, failures.c.reason)
-        .where(failures.c.night == label)
+        .where(
+            or_(
+                failures.c.night == label,
+                and_(
+                    failures.c.night.is_(None),
+                    failures.c.run_id.in_(select(files.c.run_id).where(files.c.night == label)),
+                ),
+            )
+        )
         .order_by(failures.c.id)
     ).all()
     if n_files == 0 and not fail_rows:

@@ -1,0 +1,321 @@
+"""Writing detection records to CSV, ECSV, VOTable and JSON, streamed and atomically.
+
+Rows are written as they come from ``Archive.iter_detections`` (constant memory); the file is
+written under a temporary name in the target folder and renamed at the end, so a failed export
+leaves nothing behind, and an existing file is never replaced unless ``force``. Floats are
+written with ``repr`` (shortest text that reads back to the same float64); unknown values are
+empty fields (CSV, ECSV), empty cells (VOTable) or ``null`` (JSON). ECSV and VOTable carry
+units and descriptions as column metadata and the provenance (speccat version, archive URL with
+the password hidden, filters, UTC time of export) in their header.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import importlib
+import io
+import json
+import os
+import tempfile
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import IO, Any
+from xml.sax.saxutils import escape, quoteattr
+
+from speccat import __version__
+from speccat.archive import EXPORT_COLUMNS, Archive, Filters
+from speccat.archive.engine import sqlite_path
+from speccat.archive.records import DESCRIPTIONS, INT_COLUMNS, STRING_COLUMNS, UNITS
+from speccat.errors import ExportError
+
+FORMATS: dict[str, str] = {
+    ".csv": "csv",
+    ".ecsv": "ecsv",
+    ".vot": "votable",
+    ".xml": "votable",
+    ".json": "json",
+}
+
+
+@dataclass(frozen=True)
+class Column:
+    """One output column: name, kind (``int``/``float``/``str``), unit and description."""
+
+    name: str
+    kind: str
+    unit: str = ""
+    description: str = ""
+
+
+def format_for(path: str | Path) -> str:
+    """The export format implied by the file suffix; ExportError for anything else."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in FORMATS:
+        known = ", ".join(FORMATS)
+        raise ExportError(
+            f"{path}: unknown export suffix {suffix or '(none)'!r}; use one of {known}"
+        )
+    return FORMATS[suffix]
+
+
+def export_columns(with_derived: bool = False) -> list[Column]:
+    cols = [
+        Column(
+            name,
+            "int" if name in INT_COLUMNS else "str" if name in STRING_COLUMNS else "float",
+            UNITS.get(name, ""),
+            DESCRIPTIONS.get(name, ""),
+        )
+        for name in EXPORT_COLUMNS
+    ]
+    if with_derived:
+        module = _derived_module()
+        units: Mapping[str, str] = getattr(module, "DERIVED_UNITS", {})
+        cols += [Column(n, "float", units.get(n, "")) for n in module.DERIVED_COLUMNS]
+    return cols
+
+
+def _derived_module() -> Any:
+    # Deferred: the physics of derived quantities is optional at export time.
+    try:
+        return importlib.import_module("speccat.physics.derived")
+    except ImportError:
+        raise ExportError(
+            "--with-derived: derived quantities are not available in this speccat"
+        ) from None
+
+
+def with_derived(records: Iterable[dict[str, Any]]) -> Iterator[dict[str, Any]]:
+    """Each record extended by ``speccat.physics.derived.derived_quantities``."""
+    derive: Callable[[Mapping[str, Any]], Mapping[str, Any]] = _derived_module().derived_quantities
+    for rec in records:
+        yield {**rec, **derive(rec)}
+
+
+def provenance(archive_url: str, filters: Filters) -> dict[str, Any]:
+    return {
+        "speccat_version": __version__,
+        "archive": archive_url,
+        "filters": filters.describe(),
+        "exported_utc": datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+    }
+
+
+# ---- cell formatting -------------------------------------------------------------------------
+def text(value: Any) -> str:
+    """A cell as text: '' for unknown, repr for floats (exact round trip)."""
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return repr(value)
+    return str(value)
+
+
+def _ecsv_cell(value: Any) -> str:
+    s = text(value)
+    if s == "" or any(ch in s for ch in ' "\t\n\r') or s.startswith("#"):
+        return '"' + s.replace('"', '""') + '"'
+    return s
+
+
+# ---- writers -----------------------------------------------------------------------------------
+def write_csv(
+    out: IO[str],
+    records: Iterable[Mapping[str, Any]],
+    columns: Sequence[Column],
+    meta: Mapping[str, Any],
+) -> int:
+    writer = csv.writer(out, lineterminator="\n")
+    names = [c.name for c in columns]
+    writer.writerow(names)
+    n = 0
+    for rec in records:
+        writer.writerow([text(rec.get(name)) for name in names])
+        n += 1
+    return n
+
+
+def write_json(
+    out: IO[str],
+    records: Iterable[Mapping[str, Any]],
+    columns: Sequence[Column],
+    meta: Mapping[str, Any],
+) -> int:
+    names = [c.name for c in columns]
+    out.write("[")
+    n = 0
+    for rec in records:
+        out.write(",\n" if n else "\n")
+        out.write(json.dumps({k: rec.get(k) for k in names}, ensure_ascii=False, allow_nan=False))
+        n += 1
+    out.write("\n]\n")
+    return n
+
+
+def ecsv_header(columns: Sequence[Column], meta: Mapping[str, Any]) -> str:
+    """The ECSV header (and column-name row) as astropy writes it for these columns."""
+    from astropy.table import Table  # deferred: astropy.table is slow to import
+
+    dtypes = {"int": "int64", "float": "float64", "str": "str"}
+    table = Table(names=[c.name for c in columns], dtype=[dtypes[c.kind] for c in columns])
+    for c in columns:
+        if c.unit:
+            table[c.name].unit = c.unit
+        if c.description:
+            table[c.name].description = c.description
+    table.meta.update(meta)
+    buf = io.StringIO()
+    table.write(buf, format="ascii.ecsv")
+    return buf.getvalue()
+
+
+def write_ecsv(
+    out: IO[str],
+    records: Iterable[Mapping[str, Any]],
+    columns: Sequence[Column],
+    meta: Mapping[str, Any],
+) -> int:
+    out.write(ecsv_header(columns, meta))
+    names = [c.name for c in columns]
+    n = 0
+    for rec in records:
+        out.write(" ".join(_ecsv_cell(rec.get(name)) for name in names))
+        out.write("\n")
+        n += 1
+    return n
+
+
+_VOTYPES = {
+    "int": 'datatype="long"',
+    "float": 'datatype="double"',
+    "str": 'datatype="unicodeChar" arraysize="*"',
+}
+_VOUNITS = {"km / s": "km/s"}
+
+
+def votable_header(columns: Sequence[Column], meta: Mapping[str, Any]) -> str:
+    lines = [
+        '<?xml version="1.0" encoding="utf-8"?>',
+        '<VOTABLE version="1.4" xmlns="http://www.ivoa.net/xml/VOTable/v1.3">',
+        ' <RESOURCE type="results">',
+    ]
+    for key, value in meta.items():
+        shown = value if isinstance(value, str) else json.dumps(value, ensure_ascii=False)
+        lines.append(f"  <INFO name={quoteattr(key)} value={quoteattr(shown)}/>")
+    lines += ['  <TABLE name="detections">', "   <DESCRIPTION>speccat detections</DESCRIPTION>"]
+    for c in columns:
+        attrs = f"name={quoteattr(c.name)} {_VOTYPES[c.kind]}"
+        if c.unit:
+            attrs += f" unit={quoteattr(_VOUNITS.get(c.unit, c.unit))}"
+        desc = f"<DESCRIPTION>{escape(c.description)}</DESCRIPTION>" if c.description else ""
+        lines.append(f"   <FIELD {attrs}>{desc}</FIELD>")
+    lines += ["   <DATA>", "    <TABLEDATA>"]
+    return "\n".join(lines) + "\n"
+
+
+_VOTABLE_FOOTER = "    </TABLEDATA>\n   </DATA>\n  </TABLE>\n </RESOURCE>\n</VOTABLE>\n"
+
+
+def write_votable(
+    out: IO[str],
+    records: Iterable[Mapping[str, Any]],
+    columns: Sequence[Column],
+    meta: Mapping[str, Any],
+) -> int:
+    out.write(votable_header(columns, meta))
+    names = [c.name for c in columns]
+    n = 0
+    for rec in records:
+        cells = "".join(f"<TD>{escape(text(rec.get(name)))}</TD>" for name in names)
+        out.write(f"     <TR>{cells}</TR>\n")
+        n += 1
+    out.write(_VOTABLE_FOOTER)
+    return n
+
+
+WRITERS: dict[
+    str, Callable[[IO[str], Iterable[Mapping[str, Any]], Sequence[Column], Mapping[str, Any]], int]
+] = {
+    "csv": write_csv,
+    "ecsv": write_ecsv,
+    "votable": write_votable,
+    "json": write_json,
+}
+
+
+# ---- files -------------------------------------------------------------------------------------
+@contextlib.contextmanager
+def atomic_output(path: Path, force: bool) -> Iterator[IO[str]]:
+    """A text stream to a temporary file beside ``path``, moved into place on success."""
+    if path.exists() and not force:
+        raise ExportError(f"{path} already exists; use --force to overwrite it")
+    if path.is_dir():
+        raise ExportError(f"{path} is a folder")
+    folder = path.parent
+    if not folder.is_dir():
+        raise ExportError(f"{path}: folder {folder} does not exist")
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=folder)
+    except OSError as exc:
+        raise ExportError(f"{path}: cannot write in {folder} ({exc.strerror})") from None
+    tmp = Path(tmp_name)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as stream:
+            yield stream
+        umask = os.umask(0)
+        os.umask(umask)
+        tmp.chmod(0o666 & ~umask)
+        _place(tmp, path, force)
+    finally:
+        tmp.unlink(missing_ok=True)
+
+
+def _place(tmp: Path, path: Path, force: bool) -> None:
+    if force:
+        os.replace(tmp, path)
+        return
+    try:
+        os.link(tmp, path)  # fails if the target appeared meanwhile: never clobber
+    except FileExistsError:
+        raise ExportError(f"{path} already exists; use --force to overwrite it") from None
+    except OSError:
+        if path.exists():
+            raise ExportError(f"{path} already exists; use --force to overwrite it") from None
+        os.replace(tmp, path)
+
+
+def export(
+    archive: Archive,
+    filters: Filters,
+    path: str | Path,
+    *,
+    force: bool = False,
+    derived: bool = False,
+    sort: str = "detection_id",
+    descending: bool = False,
+    batch: int = 5000,
+) -> int:
+    """Write every detection matching ``filters`` to ``path`` (format from its suffix);
+    returns the number of rows written."""
+    target = Path(path)
+    fmt = format_for(target)
+    db_file = sqlite_path(archive.target)
+    if (
+        db_file is not None
+        and db_file.exists()
+        and target.exists()
+        and target.resolve() == db_file.resolve()
+    ):
+        raise ExportError(f"{target} is the archive itself; choose another output file")
+    columns = export_columns(derived)
+    meta = provenance(archive.url, filters)
+    records: Iterable[dict[str, Any]] = archive.iter_detections(
+        filters, sort=sort, descending=descending, batch=batch
+    )
+    if derived:
+        records = with_derived(records)
+    with atomic_output(target, force) as out:
+        return WRITERS[fmt](out, records, columns, meta)
