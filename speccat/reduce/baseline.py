@@ -1,0 +1,206 @@
+"""Baseline: polynomial (order by the Bayesian information criterion) plus an optional ripple.
+
+The polynomial is in x = 2*chan/(n-1) - 1 (``speccat.model.BaselineModel``). Orders 0..max are
+compared at once from one QR factorisation of the design matrix: the residual sum of squares of
+the first k columns is |y|^2 - sum_(j<k) (Q^T y)_j^2. BIC = m ln(RSS/m) + p ln m
+(Schwarz 1978, Ann. Stat. 6, 461). A standing wave is searched in the periodogram of the
+line-free residual; its normalised power is exponentially distributed for white noise
+(Scargle 1982, ApJ 263, 835, eq. 14), which sets the detection threshold.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+
+from speccat.reduce.noise import robust_rms
+
+
+@dataclass(frozen=True)
+class BaselineFit:
+    """Baseline on every channel: ``poly`` + ``ripple`` parts, polynomial coeffs in x."""
+
+    coeffs: np.ndarray
+    ripple_amp: float
+    ripple_period_chan: float
+    ripple_phase: float
+    poly: np.ndarray
+    ripple: np.ndarray
+
+    @property
+    def total(self) -> np.ndarray:
+        return self.poly + self.ripple
+
+
+def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.ndarray:
+    """Grow every run of True by ``factor`` times its own length (at least ``minimum``) per side."""
+    n = mask.size
+    edges = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
+    starts = np.flatnonzero(edges == 1)
+    ends = np.flatnonzero(edges == -1)
+    if starts.size == 0:
+        return mask.copy()
+    grow = np.maximum(np.ceil((ends - starts) * factor), minimum).astype(np.int64)
+    return intervals_mask(n, starts - grow, ends + grow)
+
+
+def intervals_mask(n: int, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Boolean mask of the union of channel intervals [lo, hi) (clipped to the band)."""
+    lo = np.clip(np.asarray(lo, dtype=np.int64), 0, n)
+    hi = np.clip(np.asarray(hi, dtype=np.int64), 0, n)
+    acc = np.bincount(lo, minlength=n + 1) - np.bincount(hi, minlength=n + 1)
+    return np.asarray(np.cumsum(acc[:n]) > 0)
+
+
+@functools.lru_cache(maxsize=8)
+def _legendre_design(n: int, order: int) -> np.ndarray:
+    """Legendre columns P_0..P_order at x = 2*chan/(n-1) - 1 (cached; read-only)."""
+    x = 2.0 * np.arange(n, dtype=float) / max(n - 1, 1) - 1.0
+    out = np.polynomial.legendre.legvander(x, order)
+    out.flags.writeable = False
+    return out
+
+
+def _design(n: int, order: int, period: float) -> np.ndarray:
+    """Columns: [sin, cos] of the ripple (when period > 0), then P_0..P_order."""
+    poly = _legendre_design(n, order)
+    if period <= 0:
+        return poly
+    arg = 2.0 * np.pi * np.arange(n, dtype=float) / period
+    return np.column_stack((np.sin(arg), np.cos(arg), poly))
+
+
+def fit_linear(
+    y: np.ndarray, good: np.ndarray, max_order: int, fixed_order: int | None, period: float
+) -> tuple[BaselineFit, float]:
+    """Least-squares baseline on ``good`` channels; returns the fit and its BIC.
+
+    Normal equations in the (well-conditioned) Legendre basis, Cholesky factor G = L L^T:
+    with w = L^-1 A^T y the RSS of the first k columns is |y|^2 - sum_(j<k) w_j^2.
+    """
+    n = y.size
+    m = int(good.sum())
+    n_rip = 2 if period > 0 else 0
+    top = max_order if fixed_order is None else fixed_order
+    top = max(0, min(top, m - n_rip - 2))
+    design = _design(n, top, period)
+    a = design[good]
+    yg = y[good]
+    chol = np.linalg.cholesky(a.T @ a)
+    w = scipy.linalg.solve_triangular(chol, a.T @ yg, lower=True)
+    rss_all = float(np.dot(yg, yg)) - np.cumsum(w**2)
+    n_cols = np.arange(1, design.shape[1] + 1)
+    if fixed_order is None:
+        first = n_rip  # the ripple columns are always in
+        rss = np.maximum(rss_all[first:], 1e-300)
+        bic = m * np.log(rss / m) + (n_cols[first:] + (1 if period > 0 else 0)) * np.log(m)
+        k = first + int(np.argmin(bic))
+        best_bic = float(bic[k - first])
+    else:
+        k = design.shape[1] - 1
+        best_bic = float(m * np.log(max(rss_all[k], 1e-300) / m) + (k + 1) * np.log(m))
+    beta = scipy.linalg.solve_triangular(chol[: k + 1, : k + 1].T, w[: k + 1], lower=False)
+    leg = beta[n_rip:]
+    poly = design[:, n_rip : k + 1] @ leg
+    coeffs = np.polynomial.legendre.leg2poly(leg)
+    if n_rip:
+        s_amp, c_amp = float(beta[0]), float(beta[1])
+        ripple = design[:, :2] @ beta[:2]
+        amp, phase = float(np.hypot(s_amp, c_amp)), float(np.arctan2(c_amp, s_amp))
+    else:
+        ripple, amp, phase = np.zeros(n), 0.0, 0.0
+    fit = BaselineFit(np.asarray(coeffs), amp, period if n_rip else 0.0, phase, poly, ripple)
+    return fit, best_bic
+
+
+def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: float) -> float:
+    """Period (channels) of a significant sinusoid in the good-channel residual, else 0.
+
+    Periods from 4 channels to a third of the band are searched on a 2x oversampled grid; the
+    peak's normalised power must exceed ln(M / false_alarm) for M independent frequencies.
+    """
+    n = resid.size
+    m = int(good.sum())
+    if m < 32 or not np.isfinite(sigma) or sigma <= 0:
+        return 0.0
+    r = np.where(good, resid - np.mean(resid[good]), 0.0)
+    nfft = 2 * n
+    power = np.abs(np.fft.rfft(r, nfft)) ** 2 / (m * sigma**2)
+    freqs = np.arange(power.size) / nfft
+    band = (freqs >= 3.0 / n) & (freqs <= 0.25)
+    if not band.any():
+        return 0.0
+    idx = np.flatnonzero(band)
+    best = idx[int(np.argmax(power[idx]))]
+    n_indep = max(idx.size / 2.0, 1.0)
+    if power[best] < np.log(n_indep / false_alarm):
+        return 0.0
+    lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
+    denom = lo - 2 * mid + hi
+    shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
+    return float(nfft / (best + np.clip(shift, -0.5, 0.5)))
+
+
+def refine_period(
+    y: np.ndarray, good: np.ndarray, max_order: int, fixed_order: int | None, period: float
+) -> float:
+    """Polish the ripple period by a parabola through the BIC at nearby periods."""
+    n = y.size
+    step = 0.25 * period * period / (2.0 * n)  # a quarter of the oversampled frequency bin
+    trial = period + step * np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
+    bics = np.array([fit_linear(y, good, max_order, fixed_order, p)[1] for p in trial])
+    coef = np.polyfit(trial - period, bics, 2)
+    if coef[0] <= 0:
+        return float(trial[int(np.argmin(bics))])
+    return float(period + np.clip(-coef[1] / (2 * coef[0]), -2 * step, 2 * step))
+
+
+def fit_baseline(
+    y: np.ndarray,
+    valid: np.ndarray,
+    line_mask: np.ndarray,
+    *,
+    max_order: int,
+    fixed_order: int | None,
+    clip_sigma: float,
+    ripple: bool,
+    ripple_false_alarm: float,
+    start: tuple[np.ndarray, float] | None = None,
+    max_iter: int = 6,
+) -> tuple[BaselineFit, np.ndarray]:
+    """Iterative baseline: fit, clip |resid| > clip_sigma, dilate clipped runs, refit.
+
+    ``start`` (good-channel mask, ripple period) warm-starts from an earlier call. Stops when
+    fewer than 0.2 % of the channels change. Returns the baseline and the mask of channels it
+    was fitted on (valid, line-free, unclipped). Invalid channels of ``y`` may hold anything.
+    """
+    free = valid & ~line_mask
+    good = free.copy() if start is None else start[0] & free
+    if good.sum() < 8:
+        good = valid.copy()
+    period = 0.0 if start is None or not ripple else start[1]
+    fit, _ = fit_linear(y, good, max_order, fixed_order, period)
+    tolerance = max(2, int(0.002 * y.size))
+    for it in range(max_iter):
+        resid = y - fit.total
+        sigma = robust_rms(resid[good])
+        clipped = valid & (np.abs(resid) > clip_sigma * sigma)
+        new_good = free & ~dilate_runs(clipped)
+        if new_good.sum() < max(8, 0.2 * valid.sum()):
+            new_good = good
+        new_period = period
+        if ripple and it < 2:
+            found = find_ripple(y - fit.poly, new_good, sigma, ripple_false_alarm)
+            same = bool(found and period and abs(found - period) < 0.02 * period)
+            if found and not same:
+                found = refine_period(y, new_good, max_order, fixed_order, found)
+            new_period = period if same else found
+        changed = int(np.count_nonzero(new_good != good))
+        if changed <= tolerance and new_period == period and (it > 0 or start is not None):
+            break
+        good, period = new_good, new_period
+        fit, _ = fit_linear(y, good, max_order, fixed_order, period)
+    return fit, good

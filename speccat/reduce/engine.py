@@ -1,0 +1,215 @@
+"""Detection and fitting rounds: find seeds, group them into blends, fit, prune, repeat.
+
+Component parameter rows are [A, c, ln s] (Gaussian: peak, centre, sigma; channels) or
+[S, c, ln sigma, ln gamma] (Voigt: area, centre, Gaussian sigma, Lorentzian half width).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from speccat.reduce.detect import Seed, filter_bank, find_seeds
+from speccat.reduce.fit import GroupFit, fit_components, model
+from speccat.reduce.noise import correlation_factor
+from speccat.reduce.settings import ReduceSettings
+
+SQRT2PI = np.sqrt(2.0 * np.pi)
+
+
+@dataclass(frozen=True)
+class Noise:
+    """Per-channel rms and the channel autocorrelation rho(1..L) of the line-free residual."""
+
+    rms: float
+    rho: np.ndarray
+
+
+@dataclass(frozen=True)
+class Group:
+    """One blend: its fitted components, the fit, and its channel window [lo, hi)."""
+
+    params: np.ndarray
+    fit: GroupFit
+    lo: int
+    hi: int
+
+
+def reach_sigma(params: np.ndarray) -> np.ndarray:
+    """A Gaussian-equivalent extent (channels) per component; Voigt wings count double."""
+    sig = np.exp(np.clip(params[:, 2], -30, 30))
+    if params.shape[1] == 4:
+        sig = sig + 2.0 * np.exp(np.clip(params[:, 3], -30, 30))
+    return np.asarray(sig)
+
+
+def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
+    """Indices of components whose +/- 3 sigma intervals overlap (chains), in centre order."""
+    if params.shape[0] == 0:
+        return []
+    order = np.argsort(params[:, 1])
+    cen, sig = params[order, 1], reach_sigma(params[order])
+    lo, hi = cen - 3.0 * sig, cen + 3.0 * sig
+    reach = np.maximum.accumulate(hi)
+    breaks = np.flatnonzero(lo[1:] >= reach[:-1]) + 1
+    out: list[np.ndarray] = []
+    for chunk in np.split(order, breaks):
+        out.extend(chunk[i : i + max_components] for i in range(0, chunk.size, max_components))
+    return out
+
+
+def window(params: np.ndarray, n: int) -> tuple[int, int]:
+    """Fit window [lo, hi): +/- 4 sigma around the components, with spare channels."""
+    cen, sig = params[:, 1], reach_sigma(params)
+    lo = int(np.floor(np.min(cen - 4.0 * sig)))
+    hi = int(np.ceil(np.max(cen + 4.0 * sig))) + 1
+    need = params.size + 3
+    while hi - lo < need:
+        lo, hi = lo - 1, hi + 1
+    return max(lo, 0), min(hi, n)
+
+
+def model_snr(params: np.ndarray, noise: Noise, n: int, profile: str) -> np.ndarray:
+    """Matched-filter S/N of each component: |model| / (rms sqrt(correlation factor))."""
+    chan = np.arange(n, dtype=float)
+    out = np.empty(params.shape[0])
+    for i, p in enumerate(params):
+        lo, hi = window(p[None, :], n)
+        m = model(chan[lo:hi], p[None, :], profile)
+        cf = correlation_factor(noise.rho, np.exp(p[2]))[0]
+        out[i] = np.sqrt(np.dot(m, m) / cf) / noise.rms
+    return out
+
+
+def _fit_all(
+    resid: np.ndarray, valid: np.ndarray, params: np.ndarray, noise: Noise, s: ReduceSettings
+) -> list[Group]:
+    n = resid.size
+    chan = np.arange(n, dtype=float)
+    groups = []
+    for rows in group_rows(params, s.max_components):
+        p0, others = params[rows], np.delete(params, rows, axis=0)
+        lo, hi = window(p0, n)
+        sel = valid[lo:hi]
+        x = chan[lo:hi][sel]
+        if x.size < p0.size + 1:
+            continue
+        y = resid[lo:hi][sel] - model(x, others, s.profile)
+        fit = _simplest(x, y, fit_components(x, y, p0, s.profile), noise, s.detect_sigma)
+        groups.append(Group(fit.params, fit, lo, hi))
+    return groups
+
+
+def _simplest(
+    x: np.ndarray, y: np.ndarray, fit: GroupFit, noise: Noise, detect_sigma: float
+) -> GroupFit:
+    """Drop blend components whose removal raises chi^2 by less than detect_sigma^2.
+
+    A line of matched-filter S/N z lowers chi^2 by about z^2, so this is the detection
+    threshold applied to each component given the others (a likelihood-ratio test).
+    """
+    while fit.params.shape[0] > 1:
+        trials = [
+            fit_components(x, y, np.delete(fit.params, i, axis=0), fit.profile)
+            for i in range(fit.params.shape[0])
+        ]
+        gain = np.array([(t.rss - fit.rss) / noise.rms**2 for t in trials])
+        worst = int(np.argmin(gain))
+        if gain[worst] >= detect_sigma**2:
+            break
+        fit = trials[worst]
+    return fit
+
+
+def fit_groups(
+    resid: np.ndarray,
+    valid: np.ndarray,
+    params: np.ndarray,
+    noise: Noise,
+    settings: ReduceSettings,
+    profile: str,
+) -> list[Group]:
+    """Fit every blend group jointly (others' models subtracted); drop insignificant components.
+
+    A component survives when it is finite, inside the band, not wider than half the band, and
+    its model S/N (the matched-filter S/N of the fitted shape) reaches ``detect_sigma``.
+    """
+    n = resid.size
+    groups: list[Group] = []
+    for _ in range(4):
+        groups = _fit_all(resid, valid, params, noise, settings)
+        fitted = stack(groups, params.shape[1])
+        keep = _keep(fitted, noise, settings, n, profile)
+        params = fitted[keep]
+        if keep.all():
+            return groups
+    return _fit_all(resid, valid, params, noise, settings)
+
+
+def _keep(
+    params: np.ndarray, noise: Noise, settings: ReduceSettings, n: int, profile: str
+) -> np.ndarray:
+    if params.shape[0] == 0:
+        return np.zeros(0, dtype=bool)
+    finite = np.all(np.isfinite(params), axis=1)
+    safe = np.where(finite[:, None], params, 0.0)
+    sig = reach_sigma(safe)
+    inside = (safe[:, 1] > -0.5) & (safe[:, 1] < n - 0.5) & (sig < 0.5 * n) & (sig > 0.05)
+    ok = finite & inside
+    snr = np.zeros(params.shape[0])
+    snr[ok] = model_snr(safe[ok], noise, n, profile)
+    return np.asarray(ok & (snr >= settings.detect_sigma))
+
+
+def seed_params(seeds: list[Seed], profile: str) -> np.ndarray:
+    """Start values from seeds: Gaussian [A, c, ln s]; Voigt [A sqrt(2 pi) s, c, ln .8s, ln .3s]."""
+    amp = np.array([s.amplitude for s in seeds])
+    cen = np.array([s.center_chan for s in seeds])
+    sig = np.array([s.sigma_chan for s in seeds])
+    if profile == "gaussian":
+        return np.column_stack((amp, cen, np.log(sig)))
+    return np.column_stack((amp * SQRT2PI * sig, cen, np.log(0.8 * sig), np.log(0.3 * sig)))
+
+
+def stack(groups: list[Group], npar: int) -> np.ndarray:
+    """All components of ``groups`` as one parameter array."""
+    return np.concatenate([g.params for g in groups]) if groups else np.zeros((0, npar))
+
+
+def detect_and_fit(
+    resid: np.ndarray,
+    valid: np.ndarray,
+    noise: Noise,
+    sigmas: np.ndarray,
+    settings: ReduceSettings,
+    params: np.ndarray,
+) -> tuple[np.ndarray, list[Group]]:
+    """Rounds of: filter the residual left by the current model, seed new lines, refit all.
+
+    ``params`` are refitted first when given. Only the first round's seeds are shadowed by
+    nothing but each other; later rounds look at what the fitted model leaves, so structure
+    next to or under a fitted line (a blend) becomes a new component. Returns the surviving
+    components and their fitted groups.
+    """
+    n = resid.size
+    profile = settings.profile
+    chan = np.arange(n, dtype=float)
+    groups: list[Group] = []
+    if params.shape[0]:
+        groups = fit_groups(resid, valid, params, noise, settings, profile)
+        params = stack(groups, params.shape[1])
+    for _ in range(settings.max_rounds):
+        left = np.where(valid, resid - model(chan, params, profile), 0.0)
+        bank = filter_bank(left, sigmas, noise.rms, noise.rho)
+        room = settings.max_lines - params.shape[0]
+        seeds = find_seeds(bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, [], room)
+        if not seeds:
+            break
+        start = np.concatenate((params, seed_params(seeds, profile)))
+        groups = fit_groups(resid, valid, start, noise, settings, profile)
+        new_params = stack(groups, start.shape[1])
+        if new_params.shape == params.shape and np.allclose(new_params, params, atol=1e-6):
+            break  # the seeds were pruned again: nothing more to find
+        params = new_params
+    return params, groups

@@ -1,0 +1,151 @@
+"""Turn fitted groups into ``LineFit`` records: Hz units, direct sums, widths, moments, flags."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from speccat.model import Kind, LineFit
+from speccat.reduce.engine import Group, Noise
+from speccat.reduce.fit import Component, components, model
+from speccat.reduce.noise import correlation_factor
+from speccat.reduce.profile import box_correlation_factor, direct_sum, moments, peak_fraction_width
+from speccat.reduce.settings import ReduceSettings
+
+#: A peak-fraction width is reported only when its level (fraction x peak) is this many rms.
+WIDTH_LEVEL_SIGMA = 4.0
+
+
+def assemble(
+    freq: np.ndarray,
+    resid: np.ndarray,
+    valid: np.ndarray,
+    clip: np.ndarray,
+    groups: list[Group],
+    noise: Noise,
+    s: ReduceSettings,
+) -> list[LineFit]:
+    """One ``LineFit`` per fitted component, in frequency order; blend index in that order."""
+    n = resid.size
+    chan = np.arange(n, dtype=float)
+    dfdc = np.gradient(freq)
+    groups = sorted(groups, key=lambda g: float(np.min(g.params[:, 1])))
+    models = [model(chan, g.params, g.fit.profile) for g in groups]
+    total = np.sum(models, axis=0) if models else np.zeros(n)
+    data = np.where(valid, resid, np.nan)
+    out: list[LineFit] = []
+    for index, (group, gmodel) in enumerate(zip(groups, models, strict=True)):
+        comps = components(group.fit)
+        chi2 = group.fit.rss / group.fit.dof / noise.rms**2
+        poor = (not group.fit.success) or chi2 > max(
+            s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
+        )
+        dominant = max(comps, key=lambda c: abs(c.peak))
+        sign = 1.0 if dominant.peak >= 0 else -1.0
+        prof = sign * (data - (total - gmodel))[group.lo : group.hi]
+        top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
+        widths = [
+            peak_fraction_width(prof, frac) if frac * top >= WIDTH_LEVEL_SIGMA * noise.rms else None
+            for frac in (0.5, 0.2)
+        ]
+        for i, comp in enumerate(comps):
+            own = model(chan, group.params[i : i + 1], group.fit.profile)
+            isolated = data - (total - own)
+            extra: dict[str, object] = {}
+            flags = _flags(comp, chi2, poor, len(comps), n, valid, clip, noise, s)
+            out.append(
+                _linefit(comp, freq, dfdc, isolated, noise, s, chi2, index, flags, widths, extra)
+            )
+    return sorted(out, key=lambda line: line.center_hz)
+
+
+def _window(comp: Component, n: int, half_fwhm: float) -> tuple[int, int]:
+    lo = int(np.ceil(comp.center - half_fwhm * comp.fwhm))
+    hi = int(np.floor(comp.center + half_fwhm * comp.fwhm)) + 1
+    near = int(np.clip(np.rint(comp.center), 0, n - 1))
+    lo, hi = max(min(lo, near), 0), min(max(hi, near + 1), n)
+    return lo, hi
+
+
+def _flags(
+    comp: Component,
+    chi2: float,
+    poor: bool,
+    size: int,
+    n: int,
+    valid: np.ndarray,
+    clip: np.ndarray,
+    noise: Noise,
+    s: ReduceSettings,
+) -> tuple[str, ...]:
+    lo, hi = _window(comp, n, s.sum_window_fwhm)
+    snr = abs(comp.peak) / noise.rms
+    flags = []
+    if comp.fwhm <= s.rfi_max_fwhm_chan and snr >= s.rfi_min_snr:
+        flags.append("rfi-spike")
+    if size > 1:
+        flags.append("blended")
+    if poor:
+        flags.append("poor-fit")
+    edge = s.sum_window_fwhm * comp.fwhm
+    if comp.center - edge < 0 or comp.center + edge > n - 1:
+        flags.append("band-edge")
+    if clip[lo:hi].any():
+        flags.append("clipped")
+    elif not valid[lo:hi].all():
+        flags.append("nan-channels")
+    return tuple(flags)
+
+
+def _linefit(
+    comp: Component,
+    freq: np.ndarray,
+    dfdc: np.ndarray,
+    isolated: np.ndarray,
+    noise: Noise,
+    s: ReduceSettings,
+    chi2: float,
+    blend: int,
+    flags: tuple[str, ...],
+    widths: list[float | None],
+    extra: dict[str, object],
+) -> LineFit:
+    n = freq.size
+    chan = np.arange(n, dtype=float)
+    scale = float(np.interp(comp.center, chan, dfdc))
+    inflate = float(np.sqrt(correlation_factor(noise.rho, comp.sigma)[0]))
+    lo, hi = _window(comp, n, s.sum_window_fwhm)
+    seg = isolated[lo:hi]
+    ok = np.isfinite(seg)
+    total = direct_sum(seg, dfdc[lo:hi])
+    box = box_correlation_factor(noise.rho, int(ok.sum()))
+    total_err = noise.rms * float(np.sqrt(np.sum(dfdc[lo:hi][ok] ** 2) * box))
+    sign = 1.0 if comp.peak >= 0 else -1.0
+    m1, m2 = moments(freq[lo:hi], sign * seg)
+    lorentz = comp.lorentz_fwhm
+    lorentz_err = comp.lorentz_fwhm_err
+    return LineFit(
+        center_hz=float(np.interp(comp.center, chan, freq)),
+        center_err_hz=comp.center_err * inflate * scale,
+        peak=comp.peak,
+        peak_err=comp.peak_err * inflate,
+        fwhm_hz=comp.fwhm * scale,
+        fwhm_err_hz=comp.fwhm_err * inflate * scale,
+        integral_fit_hz=comp.area * scale,
+        integral_fit_err_hz=comp.area_err * inflate * scale,
+        integral_sum_hz=total,
+        integral_sum_err_hz=total_err,
+        center_chan=comp.center,
+        fwhm_chan=comp.fwhm,
+        snr=abs(comp.peak) / noise.rms,
+        chi2_red=float(chi2),
+        kind=Kind.EMISSION if comp.peak >= 0 else Kind.ABSORPTION,
+        profile=s.profile,
+        lorentz_fwhm_hz=None if lorentz is None else lorentz * scale,
+        lorentz_fwhm_err_hz=None if lorentz_err is None else lorentz_err * inflate * scale,
+        w50_hz=None if widths[0] is None else widths[0] * scale,
+        w20_hz=None if widths[1] is None else widths[1] * scale,
+        blend=blend,
+        flags=flags,
+        moment1_hz=m1,
+        moment2_hz=m2,
+    )

@@ -1,0 +1,61 @@
+"""Robust noise: rms from the median absolute deviation, and the channel correlation.
+
+The MAD of a Gaussian sample times 1.4826 estimates its standard deviation (common practice;
+1.4826 = 1/Phi^-1(3/4)). Channel correlation (e.g. after Hanning smoothing) is measured as the
+autocorrelation of the line-free residual at small lags; it enters the noise of any sum or
+filter over several channels as sum_ij k_i k_j rho(i-j).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+MAD_TO_SIGMA = 1.482602218505602
+MAX_LAG = 8
+
+
+def robust_rms(values: np.ndarray) -> float:
+    """1.4826 x median(|v - median(v)|) over the finite values; NaN when fewer than 3."""
+    v = values[np.isfinite(values)]
+    if v.size < 3:
+        return float("nan")
+    med = np.median(v)
+    return float(MAD_TO_SIGMA * np.median(np.abs(v - med)))
+
+
+def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG) -> np.ndarray:
+    """rho(1..max_lag) of ``resid`` over pairs of good channels; insignificant values are zeroed.
+
+    A value is kept only when it exceeds 3/sqrt(pairs) in size, so white noise gives exactly
+    zero and its errors are not inflated by chance correlation.
+    """
+    r = np.where(good, resid, 0.0)
+    w = good.astype(float)
+    var = float(np.dot(r, r))
+    npts = float(w.sum())
+    rho = np.zeros(max_lag)
+    if npts < 4 * max_lag or var <= 0:
+        return rho
+    var /= npts
+    for lag in range(1, max_lag + 1):
+        pairs = float(np.dot(w[lag:], w[:-lag]))
+        if pairs < 10:
+            break
+        value = float(np.dot(r[lag:], r[:-lag])) / pairs / var
+        if abs(value) > 3.0 / np.sqrt(pairs):
+            rho[lag - 1] = value
+    return rho
+
+
+def correlation_factor(rho: np.ndarray, sigma_chan: np.ndarray | float) -> np.ndarray:
+    """Noise-variance factor 1 + 2 sum_l rho(l) exp(-l^2/(4 s^2)) for Gaussian weights of sigma s.
+
+    For a Gaussian kernel of sigma ``s`` channels, sum_i k_i k_(i+l) / sum_i k_i^2 is
+    exp(-l^2/(4 s^2)); the filtered variance is sigma^2 sum k^2 times this factor (>= 0.05).
+    """
+    s = np.atleast_1d(np.asarray(sigma_chan, dtype=float))
+    lags = np.arange(1, rho.size + 1, dtype=float)
+    if not np.any(rho):
+        return np.ones_like(s)
+    weights = np.exp(-(lags[None, :] ** 2) / (4.0 * s[:, None] ** 2))
+    return np.maximum(1.0 + 2.0 * weights @ rho, 0.05)
