@@ -63,6 +63,7 @@ _CONVENTIONS = {"VRAD": Convention.RADIO, "VOPT": Convention.OPTICAL, "ZOPT": Co
 _CONVENTIONS |= {"VELO": Convention.RELATIVISTIC, "FELO": Convention.OPTICAL}
 
 _UNIT_SCALE = {
+    "": 1.0,
     "HZ": 1.0,
     "KHZ": 1e3,
     "MHZ": 1e6,
