@@ -12,6 +12,7 @@ import os
 import uuid
 from collections.abc import Iterator
 from datetime import UTC, datetime, timedelta
+from typing import Any
 
 import numpy as np
 import pytest
@@ -64,6 +65,8 @@ def _fit(rng: np.random.Generator, center_hz: float, kind: Kind, flags: tuple[st
         lorentz_fwhm_hz=None if rng.random() < 0.7 else float(rng.uniform(1e3, 1e4)),
         w50_hz=float(rng.uniform(1e4, 5e5)),
         w20_hz=None if rng.random() < 0.3 else float(rng.uniform(1e4, 5e5)),
+        moment1_hz=center_hz + float(rng.normal(0, 1e3)),
+        moment2_hz=None if rng.random() < 0.3 else float(rng.uniform(1e3, 1e5)),
         blend=int(rng.integers(0, 3)),
         flags=flags,
     )
@@ -166,3 +169,89 @@ def archive_url(request: pytest.FixtureRequest, tmp_path: object) -> Iterator[st
     if not base:
         pytest.skip(f"PostgreSQL tests need ${PG_ENV}")
     yield from _pg_database(base)
+
+
+NIGHTS = ("2026-03-14", "2026-03-15", "2026-03-16")
+
+
+def fill_archive(url: str, seeds: range, **kwargs: int) -> tuple[Any, list[FileResult]]:
+    """A created archive holding ``make_file(seed)`` for each seed (nights in rotation)."""
+    from speccat.archive import Archive
+
+    archive = Archive.open(url, create=True)
+    run_id = archive.begin_run({"test": True})
+    results = [make_file(seed, **kwargs) for seed in seeds]
+    for i, result in enumerate(results):
+        assert archive.store_file(run_id, result, NIGHTS[i % len(NIGHTS)])
+    archive.finish_run(run_id, {"files": len(results)})
+    return archive, results
+
+
+def input_rows(results: list[FileResult]) -> list[dict[str, Any]]:
+    """The stored detections as plain dicts, in insertion order (= detection id order)."""
+    rows: list[dict[str, Any]] = []
+    for i, result in enumerate(results):
+        for sres in result.spectra:
+            stamp = sres.spectrum.obs_time
+            naive = None if stamp is None else stamp.astimezone(UTC).replace(tzinfo=None)
+            for det in sres.detections:
+                rows.append(
+                    {
+                        "id": len(rows) + 1,
+                        "source": sres.spectrum.source,
+                        "species": None if det.line is None else det.line.species,
+                        "line": None if det.line is None else det.line.name,
+                        "v_lsr_kms": det.v_lsr_kms,
+                        "center_hz": det.fit.center_hz,
+                        "snr": det.fit.snr,
+                        "night": NIGHTS[i % len(NIGHTS)],
+                        "kind": str(det.fit.kind),
+                        "obs_time": naive,
+                        "file": result.path,
+                        "det": det,
+                        "spectrum": sres,
+                    }
+                )
+    return rows
+
+
+def table_checksums(archive: Any) -> dict[str, tuple[int, str]]:
+    """(row count, sha256 of every row in id order) for every table of the archive."""
+    from sqlalchemy import select
+
+    from speccat.archive.schema import metadata
+
+    out = {}
+    with archive._reader.connect() as conn:
+        for table in metadata.sorted_tables:
+            order = table.c.id if "id" in table.c else table.c[next(iter(table.c.keys()))]
+            digest = hashlib.sha256()
+            n = 0
+            for row in conn.execute(select(table).order_by(order)):
+                digest.update(repr(tuple(row)).encode())
+                n += 1
+            out[table.name] = (n, digest.hexdigest())
+    return out
+
+
+@pytest.fixture(scope="module", params=["sqlite", "postgresql"])
+def filled_archive(
+    request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory
+) -> Iterator[tuple[Any, list[dict[str, Any]]]]:
+    """A module-wide archive of 40 synthetic files (240 detections) and its input rows, on
+    each engine; tests must not write to it."""
+    if request.param == "sqlite":
+        urls: Iterator[str] = iter([str(tmp_path_factory.mktemp("filled") / "filled.sqlite")])
+    else:
+        base = os.environ.get(PG_ENV)
+        if not base:
+            pytest.skip(f"PostgreSQL tests need ${PG_ENV}")
+        urls = _pg_database(base)
+    url = next(urls)
+    archive, results = fill_archive(url, range(40), n_spectra=2, n_det=3)
+    try:
+        yield archive, input_rows(results)
+    finally:
+        archive.close()
+        for _ in urls:  # finish the PG generator: drops the database
+            pass

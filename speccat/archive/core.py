@@ -144,7 +144,9 @@ class Archive(QueryMixin):
     def _fill_lines(self, conn: Connection) -> None:
         builtin = catalogue_builtin()
         if builtin is not None:
-            self.store_catalogue(builtin().lines, conn=conn)
+            rows = _line_rows(builtin().lines)
+            if rows:
+                conn.execute(insert(lines), rows)  # a new archive: no conflicts to resolve
 
     def close(self) -> None:
         self._reader.dispose()
@@ -292,17 +294,7 @@ class Archive(QueryMixin):
         self, catalogue_lines: Iterable[Any], conn: Connection | None = None
     ) -> None:
         """Record the catalogue in use (``CatalogueLine``-like objects), upserting by name."""
-        rows = [
-            {
-                "name": ln.name,
-                "species": ln.species,
-                "transition": ln.transition,
-                "rest_freq_hz": float(ln.rest_freq_hz),
-                "line_class": getattr(ln, "line_class", None),
-                "reference": getattr(ln, "reference", ""),
-            }
-            for ln in catalogue_lines
-        ]
+        rows = _line_rows(catalogue_lines)
         if not rows:
             return
         stmt = self._insert(lines)
@@ -350,6 +342,20 @@ class Archive(QueryMixin):
         stmt = select(sources.c.name, sources.c.v_sys_kms).where(sources.c.v_sys_kms.is_not(None))
         with self._reader.connect() as conn:
             return {str(n): float(v) for n, v in conn.execute(stmt)}
+
+
+def _line_rows(catalogue_lines: Iterable[Any]) -> list[dict[str, Any]]:
+    return [
+        {
+            "name": ln.name,
+            "species": ln.species,
+            "transition": ln.transition,
+            "rest_freq_hz": float(ln.rest_freq_hz),
+            "line_class": getattr(ln, "line_class", None),
+            "reference": getattr(ln, "reference", ""),
+        }
+        for ln in catalogue_lines
+    ]
 
 
 def _joined(values: Iterable[str]) -> str:
@@ -429,6 +435,8 @@ def _detection_row(spectrum_id: int, det: Detection, srow: Mapping[str, Any]) ->
             "lorentz_fwhm_err_hz",
             "w50_hz",
             "w20_hz",
+            "moment1_hz",
+            "moment2_hz",
         ]
     }
     row.update(

@@ -245,6 +245,8 @@ def _line_fit(m: Any) -> LineFit:
         lorentz_fwhm_err_hz=m["lorentz_fwhm_err_hz"],
         w50_hz=m["w50_hz"],
         w20_hz=m["w20_hz"],
+        moment1_hz=m["moment1_hz"],
+        moment2_hz=m["moment2_hz"],
         blend=int(m["blend"]),
         flags=tuple(x for x in m["fit_flags"].split(";") if x),
     )

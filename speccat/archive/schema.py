@@ -140,6 +140,8 @@ detections = Table(
     Column("lorentz_fwhm_err_hz", Float),
     Column("w50_hz", Float),
     Column("w20_hz", Float),
+    Column("moment1_hz", Float),
+    Column("moment2_hz", Float),
     Column("blend", Integer, nullable=False),
     Column("fit_flags", Text, nullable=False),
     # Detection
