@@ -6,6 +6,7 @@ import difflib
 import fnmatch
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
+from decimal import Decimal
 from functools import cached_property
 from typing import Any, Literal, cast
 
@@ -48,7 +49,8 @@ class CatalogueLine:
 
     @property
     def rest_freq_mhz(self) -> float:
-        return self.rest_freq_hz / 1e6
+        """Rest frequency in MHz, shifted in decimal: 1420405751.768 Hz -> 1420.405751768."""
+        return float(Decimal(repr(self.rest_freq_hz)).scaleb(-6))
 
     @classmethod
     def _bulk(cls, values: dict[str, Any]) -> CatalogueLine:
@@ -211,7 +213,7 @@ class Catalogue:
         close = difflib.get_close_matches(name_key(name), list(self._by_key), n=3, cutoff=0.75)
         hint = ""
         if close:
-            hint = "; did you mean " + ", ".join(self._by_key[k].name for k in close) + "?"
+            hint = "; did you mean " + ", ".join(self._names[self._by_key[k]] for k in close) + "?"
         raise CatalogueError(f"unknown line name {shown!r}{hint}")
 
     def search(

@@ -19,6 +19,7 @@ import functools
 import io
 import math
 from collections.abc import Iterator
+from decimal import Decimal, InvalidOperation
 from importlib import resources
 from pathlib import Path
 from typing import cast
@@ -135,6 +136,7 @@ def _line_from_row(row: _Row, strict: bool) -> CatalogueLine:
     freq_mhz = row.number("rest_freq_mhz")
     if freq_mhz <= 0:
         raise row.fail("rest_freq_mhz", "must be positive")
+    err_mhz = row.number("uncertainty_mhz", None if strict else 0.0, lo=0.0)
     prior = row.number("prior", None if strict else 0.5, lo=0.0)
     if prior > 1:
         raise row.fail("prior", f"{prior:g} is above 1")
@@ -151,8 +153,8 @@ def _line_from_row(row: _Row, strict: bool) -> CatalogueLine:
         name=name,
         species=row.text("species"),
         transition=row.text("transition", None if strict else ""),
-        rest_freq_hz=freq_mhz * 1e6,
-        rest_freq_err_hz=row.number("uncertainty_mhz", None if strict else 0.0, lo=0.0) * 1e6,
+        rest_freq_hz=_mhz_to_hz(row.values["rest_freq_mhz"], freq_mhz),
+        rest_freq_err_hz=_mhz_to_hz(row.values.get("uncertainty_mhz") or "", err_mhz),
         reference=row.text("reference", None if strict else f"user catalogue {row.source}"),
         line_class=cast(LineClass, line_class),
         prior=prior,
@@ -163,6 +165,14 @@ def _line_from_row(row: _Row, strict: bool) -> CatalogueLine:
         n=n,
         dn=dn,
     )
+
+
+def _mhz_to_hz(text: str, value_mhz: float) -> float:
+    """Hz from the MHz text, scaled in decimal so ``1420.405751768`` gives ``1420405751.768``."""
+    try:
+        return float(Decimal(text.strip()).scaleb(6))
+    except (InvalidOperation, ValueError):
+        return value_mhz * 1e6
 
 
 def parse_csv(text: str, source: str, strict: bool = False) -> list[CatalogueLine]:
