@@ -157,7 +157,8 @@ def _lines(cat: Any, rng: np.random.Generator, family: str, index: int) -> list[
     return makers[family]()
 
 
-def _axis(lines: list[TrueLine], rng: np.random.Generator, factor: float) -> np.ndarray:
+def _axis(lines: list[TrueLine], rng: np.random.Generator, factor: float,
+          min_span_kms: float = 200.0) -> np.ndarray:  # fmt: skip
     """Declared-frame frequency axis covering every line with margin, >= 5 channels per FWHM."""
     if not lines:
         f0, span_kms, chan_kms = float(10 ** rng.uniform(9.2, 10.4)), 800.0, 1.0
@@ -166,7 +167,7 @@ def _axis(lines: list[TrueLine], rng: np.random.Generator, factor: float) -> np.
         lo, hi = min(f_obs), max(f_obs)
         f0 = 0.5 * (lo + hi)
         widest = max(ln.fwhm_kms for ln in lines)
-        span_kms = (hi - lo) / f0 * C_KMS + max(8.0 * widest, 200.0)
+        span_kms = (hi - lo) / f0 * C_KMS + max(8.0 * widest, min_span_kms)
         chan_kms = min(min(ln.fwhm_kms for ln in lines) / 5.0, 2.0)
     n = int(min(max(span_kms / chan_kms, 256), 8192))
     half_hz = 0.5 * span_kms / C_KMS * f0
@@ -186,11 +187,12 @@ def _profile(v: np.ndarray, line: TrueLine) -> np.ndarray:
 def make_truth(lines: list[TrueLine], *, frame: str, factor_of: Callable[[Spectrum], float],
                rng: np.random.Generator, index: int = 0, family: str = "custom",
                tuned: bool = True, direction: tuple[float, float] | None = None,
-               when: datetime | None = None) -> Truth:  # fmt: skip
+               when: datetime | None = None, min_span_kms: float = 200.0) -> Truth:  # fmt: skip
     """One synthetic spectrum holding ``lines`` in the declared ``frame``.
 
     ``tuned`` puts the first line's rest frequency in the header (RESTFRQ); the direction and
-    time are random (in the night) unless given.
+    time are random (in the night) unless given; the band spans at least ``min_span_kms``
+    beyond the outermost lines.
     """
     ra, dec = direction or (float(rng.uniform(0, 360)),
                             float(np.degrees(np.arcsin(rng.uniform(-0.5, 1.0)))))  # fmt: skip
@@ -201,7 +203,7 @@ def make_truth(lines: list[TrueLine], *, frame: str, factor_of: Callable[[Spectr
         ra_deg=ra, dec_deg=dec, obs_time=when, site=SITE, specsys=frame,
     )  # fmt: skip
     factor = float(factor_of(header)) if frame else 1.0
-    freq = _axis(lines, rng, factor)
+    freq = _axis(lines, rng, factor, min_span_kms)
     data = rng.normal(0.0, 1.0, freq.size) + 0.3 + 0.2 * np.linspace(-1, 1, freq.size)
     for ln in lines:
         v = C_KMS * (1.0 - freq * factor / ln.rest_freq_hz)  # radio velocity, LSRK
