@@ -160,7 +160,8 @@ def write_fits_image(
     """Write ``spectrum`` as a FITS image: axis 1 spectral (``axis`` kind, see AXES; velocity
     kinds need ``rest_freq_hz`` and channels evenly spaced in that velocity), a STOKES axis when
     there are several products (or ``stokes_axis=True``), degenerate RA/DEC axes when
-    ``sky_axes``, in an IMAGE extension after an empty primary HDU when ``extension``."""
+    ``sky_axes``, in an IMAGE extension after an empty primary HDU when ``extension``;
+    ``extra_cards`` adds or replaces header cards (a None value drops the card)."""
     from astropy.io import fits
 
     labels = list(spectrum.intensity)
@@ -188,7 +189,8 @@ def write_fits_image(
         meta.pop("DEC", None)
     header = fits.Header()
     for key, value in {**cards, **meta, **(extra_cards or {})}.items():
-        header[key] = value
+        if value is not None:  # None in extra_cards drops a card
+            header[key] = value
     image = (fits.ImageHDU if extension else fits.PrimaryHDU)(data=data, header=header)
     hdus = [fits.PrimaryHDU(), image] if extension else [image]
     buf = io.BytesIO()
@@ -274,11 +276,17 @@ def write_csv(
     spectrum: Spectrum,
     *,
     axis: str = "freq_mhz",
+    intensity_column: str | None = None,
+    digits: int | None = None,
     overwrite: bool = False,
 ) -> None:
     """Write ``spectrum`` as CSV: ``# KEY = value`` metadata, a header row, one row per channel.
+
     ``axis`` is freq_hz/freq_khz/freq_mhz/freq_ghz or vrad_kms/vopt_kms/vrel_kms/vel_kms
-    (vel_kms is written radio with CTYPE1 = VRAD). Values are written with full precision."""
+    (vel_kms is written radio with CTYPE1 = VRAD). Products are columns named by their lower-case
+    label, or ``intensity_column`` (e.g. ``flux_jy``) for a single product. Values are written
+    with full precision (round trip exact), or ``digits`` significant digits for intensities.
+    """
     scale = {"freq_hz": 1.0, "freq_khz": 1e3, "freq_mhz": 1e6, "freq_ghz": 1e9}
     conventions = {
         "vrad_kms": Convention.RADIO,
@@ -292,14 +300,18 @@ def write_csv(
         x = axis_values(spectrum.freq_hz, conventions[axis].value, spectrum.rest_freq_hz) / 1e3
     else:
         raise SpeccatError(f"unknown CSV axis {axis!r}")
+    labels = list(spectrum.intensity)
+    if intensity_column and len(labels) != 1:
+        raise SpeccatError("intensity_column names the single product of a one-product spectrum")
     lines = [f"# {k} = {_csv_value(v)}" for k, v in _metadata_cards(spectrum).items()]
     if axis == "vel_kms":
         lines.append("# CTYPE1 = VRAD")
-    labels = list(spectrum.intensity)
-    lines.append(",".join([axis, *(s.lower() for s in labels)]))
-    columns = [x, *(spectrum.intensity[s] for s in labels)]
-    body = np.column_stack(columns)
-    lines.extend(",".join(repr(float(v)) for v in row) for row in body)
+    names = [intensity_column] if intensity_column else [s.lower() for s in labels]
+    lines.append(",".join([axis, *names]))
+    fmt = repr if digits is None else (lambda v: f"{v:.{digits}g}")
+    ys = [spectrum.intensity[s] for s in labels]
+    for k in range(spectrum.n_channels):
+        lines.append(",".join([repr(float(x[k])), *(fmt(float(y[k])) for y in ys)]))
     _save(path, ("\n".join(lines) + "\n").encode("utf-8"), overwrite)
 
 
