@@ -16,6 +16,7 @@ import csv
 import importlib
 import io
 import json
+import math
 import os
 import tempfile
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
@@ -92,7 +93,11 @@ def with_derived(records: Iterable[dict[str, Any]]) -> Iterator[dict[str, Any]]:
     """Each record extended by ``speccat.physics.derived.derived_quantities``."""
     derive: Callable[[Mapping[str, Any]], Mapping[str, Any]] = _derived_module().derived_quantities
     for rec in records:
-        yield {**rec, **derive(rec)}
+        extra = {
+            k: (v if not isinstance(v, float) or math.isfinite(v) else None)
+            for k, v in derive(rec).items()
+        }
+        yield {**rec, **extra}
 
 
 def provenance(archive_url: str, filters: Filters) -> dict[str, Any]:
