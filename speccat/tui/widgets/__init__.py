@@ -1,0 +1,1 @@
+"""Widgets and modal screens of the terminal browser."""
