@@ -1,4 +1,4 @@
-"""A small, fast FITS header-card parser and a direct path for single-HDU images.
+"""A small, fast FITS reader: header cards, image HDUs and fixed-width binary tables.
 
 astropy.io.fits parses each card through its configuration machinery (~30 µs a card, several
 milliseconds per file); reading thousands of spectra spends most of its time there. The FITS
@@ -104,25 +104,6 @@ def data_size(keys: dict[str, Any]) -> int:
     return abs(bitpix) // 8 * count
 
 
-def simple_image(raw: bytes) -> tuple[dict[str, Any], np.ndarray | None] | None:
-    """(keywords, data) of a file that is one primary image HDU and nothing else; None when the
-    file has extensions or anything astropy should look at (random groups)."""
-    keys, start = parse_header(raw, 0)
-    if keys.get("SIMPLE") is not True or keys.get("GROUPS") is True:
-        return None
-    size = data_size(keys)
-    if start + size > len(raw):
-        raise ReadProblem("file truncated")
-    after = start + -(-size // BLOCK) * BLOCK
-    if raw[after : after + 8] == b"XTENSION":
-        return None
-    if size == 0:
-        return keys, None
-    naxes = [keys[f"NAXIS{i}"] for i in range(keys["NAXIS"], 0, -1)]
-    data = np.frombuffer(raw, _DTYPES[keys["BITPIX"]], count=int(np.prod(naxes)), offset=start)
-    return keys, scale(data.reshape(naxes), keys)
-
-
 def scale(data: np.ndarray, keys: dict[str, Any]) -> np.ndarray:
     """Physical values: BLANK -> NaN for integer data, then BZERO + BSCALE x stored (float64)."""
     out = data.astype(np.float64)
@@ -135,3 +116,106 @@ def scale(data: np.ndarray, keys: dict[str, Any]) -> np.ndarray:
     if isinstance(bzero, int | float) and bzero != 0.0:
         out += float(bzero)
     return out
+
+
+class Unsupported(Exception):
+    """A FITS feature this module leaves to astropy (variable-length arrays, scaled columns...)."""
+
+
+_TFORM = re.compile(r"^\s*(\d*)\s*([LXBIJKAEDCM])\s*$")
+_TDTYPES = {"L": "u1", "B": "u1", "I": ">i2", "J": ">i4", "K": ">i8", "E": ">f4", "D": ">f8"}
+_TDTYPES |= {"C": ">c8", "M": ">c16"}
+
+
+def layout(raw: bytes) -> list[tuple[str, dict[str, Any], int]]:
+    """Every HDU as (kind, keywords, data offset); kind is 'image' or 'table'.
+
+    Raises ReadProblem for truncation and Unsupported for HDUs astropy should read.
+    """
+    out: list[tuple[str, dict[str, Any], int]] = []
+    pos = 0
+    while pos < len(raw):
+        if out and raw[pos : pos + 8] != b"XTENSION":
+            break  # trailing padding or junk after the last HDU (the standard allows none)
+        keys, start = parse_header(raw, pos)
+        xtension = str(keys.get("XTENSION", "")).strip().upper()
+        if not out and (keys.get("SIMPLE") is not True or keys.get("GROUPS") is True):
+            raise Unsupported("not a plain primary HDU")
+        if out and xtension not in ("IMAGE", "BINTABLE"):
+            raise Unsupported(f"extension {xtension!r}")
+        if xtension == "BINTABLE" and (keys.get("PCOUNT") or 0) != 0:
+            raise Unsupported("binary table with a heap")
+        size = data_size(keys)
+        if start + size > len(raw):
+            raise ReadProblem("file truncated")
+        out.append(("table" if xtension == "BINTABLE" else "image", keys, start))
+        pos = start + -(-size // BLOCK) * BLOCK
+    return out
+
+
+def image(raw: bytes, keys: dict[str, Any], start: int) -> np.ndarray | None:
+    """The physical values of an image HDU's data (None when it has none)."""
+    naxis = keys.get("NAXIS", 0)
+    if not naxis:
+        return None
+    naxes = [keys[f"NAXIS{i}"] for i in range(naxis, 0, -1)]
+    if 0 in naxes:
+        raise ReadProblem("zero-length axis")
+    data = np.frombuffer(raw, _DTYPES[keys["BITPIX"]], count=int(np.prod(naxes)), offset=start)
+    return scale(data.reshape(naxes), keys)
+
+
+def table(
+    raw: bytes, keys: dict[str, Any], start: int
+) -> tuple[dict[str, np.ndarray], dict[str, str]]:
+    """Columns of a binary-table HDU (name -> array over rows; vector cells shaped by TDIMn)
+    and the columns' units; FITS standard 4.0 §7.3. Unsupported for scaled or heap columns."""
+    nfields, nrows, width = keys.get("TFIELDS"), keys.get("NAXIS2"), keys.get("NAXIS1")
+    if not all(isinstance(v, int) and v >= 0 for v in (nfields, nrows, width)):
+        raise ReadProblem("binary table without valid TFIELDS/NAXIS1/NAXIS2")
+    assert isinstance(nfields, int) and isinstance(nrows, int) and isinstance(width, int)
+    names, formats, shapes, units = [], [], [], {}
+    for n in range(1, nfields + 1):
+        if f"TSCAL{n}" in keys or f"TZERO{n}" in keys:
+            raise Unsupported("scaled column")
+        m = _TFORM.match(str(keys.get(f"TFORM{n}", "")))
+        if not m:
+            raise Unsupported(f"TFORM{n}")
+        repeat = int(m.group(1) or 1)
+        code = m.group(2)
+        name = str(keys.get(f"TTYPE{n}") or f"COL{n}").strip()
+        if code == "A":
+            fmt = f"S{repeat}" if repeat else "S1"
+        elif code == "X":
+            fmt = f"({-(-repeat // 8)},)u1"
+        else:
+            fmt = _TDTYPES[code] if repeat == 1 else f"({repeat},){_TDTYPES[code]}"
+        names.append(name if name not in names else f"{name}_{n}")
+        formats.append(fmt)
+        shapes.append(_tdim(keys.get(f"TDIM{n}"), repeat) if code not in "AX" else None)
+        unit = keys.get(f"TUNIT{n}")
+        if isinstance(unit, str) and unit.strip():
+            units[names[-1]] = unit.strip()
+    dtype = np.dtype({"names": names, "formats": formats})
+    if dtype.itemsize != width:
+        raise ReadProblem(f"NAXIS1 = {width} but the columns take {dtype.itemsize} bytes")
+    rows = np.frombuffer(raw, dtype, count=nrows, offset=start)
+    columns: dict[str, np.ndarray] = {}
+    for name, shape in zip(names, shapes, strict=True):
+        col = rows[name]
+        if shape is not None and col.ndim == 2:
+            col = col.reshape((nrows, *shape))
+        columns[name] = col
+    return columns, units
+
+
+def _tdim(value: Any, repeat: int) -> tuple[int, ...] | None:
+    if not isinstance(value, str):
+        return None
+    try:
+        dims = [int(p) for p in value.strip().strip("()").split(",")]
+    except ValueError:
+        raise ReadProblem(f"TDIM {value.strip()!r} is not a shape") from None
+    if int(np.prod(dims)) != repeat or any(d <= 0 for d in dims):
+        raise ReadProblem(f"TDIM {value.strip()!r} does not match the column's {repeat} values")
+    return tuple(reversed(dims))

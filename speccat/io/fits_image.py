@@ -147,19 +147,6 @@ def _products(arr: np.ndarray, labels: list[str]) -> dict[str, np.ndarray]:
     return out
 
 
-def read_hdu(hdu: Any, index: int, path: str, header: dict[str, Any]) -> list[Spectrum]:
-    """Spectra of one astropy image HDU (an empty list when it holds no data); ``header`` is
-    its keywords as parsed by :func:`speccat.io.fits_cards.parse_header`."""
-    if not header.get("NAXIS"):
-        return []
-    data = hdu.data
-    if data is None:
-        return []
-    if data.dtype.kind not in "fiu":
-        raise ReadProblem(f"image data of type {data.dtype} is not numeric")
-    return from_array(np.asarray(data), header, index, path)
-
-
 def from_array(data: np.ndarray, header: dict[str, Any], index: int, path: str) -> list[Spectrum]:
     """The spectrum of an image HDU's data array and keywords."""
     return [spectra_from_array(data, Keys.upper(header), Origin(path, hdu=index), NAME)]

@@ -37,50 +37,60 @@ def _header_keys(header: dict[str, Any]) -> Keys:
     return Keys.upper({k: v for k, v in header.items() if not k.startswith(_STRUCTURAL)})
 
 
-def read_hdu(hdu: Any, index: int, path: str, header: dict[str, Any]) -> list[Spectrum]:
-    """Spectra of every row of one binary-table HDU."""
-    names = {name.upper(): name for name in hdu.columns.names}
+def read_columns(
+    columns: dict[str, np.ndarray],
+    units: dict[str, str],
+    index: int,
+    path: str,
+    header: dict[str, Any],
+) -> list[Spectrum]:
+    """Spectra of every row of a binary table given as name -> column array (rows first)."""
+    names = {name.upper(): name for name in columns}
     data_name = next((names[n] for n in DATA_COLUMNS if n in names), None)
     if data_name is None:
         raise NoSpectralAxis("no intensity column (DATA, SPECTRUM or FLUX)")
-    table = hdu.data
-    if table is None or len(table) == 0:
+    cells = columns[data_name]
+    if len(cells) == 0:
         raise ReadProblem("binary table has no rows")
     header_keys = _header_keys(header)
-    column = hdu.columns[data_name]
-    unit = (column.unit or "").strip() or None
-    cells = table[data_name]
-    scalar_cols = []
-    for name in hdu.columns.names:
-        if name == data_name:
-            continue
-        values = table[name]
-        if values.ndim == 1 or (values.dtype.kind in "SU" and values.ndim == 1):
-            scalar_cols.append((name.upper(), values))
+    unit = units.get(data_name)
+    scalar_cols = [
+        (name.upper(), values)
+        for name, values in columns.items()
+        if name != data_name and values.ndim == 1
+    ]
     spectra = []
-    for row in range(len(table)):
+    for row in range(len(cells)):
         row_values = {name: _scalar(values[row]) for name, values in scalar_cols}
         keys = header_keys.merged(row_values)
-        cell = np.asarray(cells[row])
-        if cell.dtype.kind not in "fiu":
-            raise ReadProblem(f"row {row}: {data_name} column is not numeric")
-        if cell.ndim == 0 or cell.size == 0:
-            raise ReadProblem(f"row {row}: zero-length {data_name} cell")
-        maxis = keys.number("MAXIS1")
-        if maxis is not None and int(maxis) != cell.shape[-1]:
-            raise ReadProblem(
-                f"row {row}: MAXIS1 = {int(maxis)} but the {data_name} cell has "
-                f"{cell.shape[-1]} channels"
-            )
-        row_unit = keys.text("BUNIT") if "BUNIT" in row_values else None
         try:
-            spectrum = spectra_from_array(
-                cell, keys, Origin(path, hdu=index, row=row), NAME, row_unit or unit or None
-            )
+            origin = Origin(path, hdu=index, row=row)
+            spectra.append(_row_spectrum(cells[row], keys, row_values, unit, data_name, origin))
         except ReadProblem as exc:
             raise type(exc)(f"row {row}: {exc}") from None
-        spectra.append(spectrum)
     return spectra
+
+
+def _row_spectrum(
+    cell: Any,
+    keys: Keys,
+    row_values: dict[str, Any],
+    unit: str | None,
+    data_name: str,
+    origin: Origin,
+) -> Spectrum:
+    cell = np.asarray(cell)
+    if cell.dtype.kind not in "fiu":
+        raise ReadProblem(f"{data_name} column is not numeric")
+    if cell.ndim == 0 or cell.size == 0:
+        raise ReadProblem(f"zero-length {data_name} cell")
+    maxis = keys.number("MAXIS1")
+    if maxis is not None and int(maxis) != cell.shape[-1]:
+        raise ReadProblem(
+            f"MAXIS1 = {int(maxis)} but the {data_name} cell has {cell.shape[-1]} channels"
+        )
+    row_unit = keys.text("BUNIT") if "BUNIT" in row_values else None
+    return spectra_from_array(cell, keys, origin, NAME, row_unit or unit or None)
 
 
 def _scalar(value: Any) -> Any:

@@ -205,17 +205,33 @@ def celestial_position(keys: Keys, axes: Mapping[str, float]) -> tuple[float | N
     return ra, dec
 
 
+def _axis_rotation(angle_deg: float, axis: int) -> np.ndarray:
+    """Rotation of the coordinate frame about x (0), y (1) or z (2), astropy's convention."""
+    c, s = math.cos(math.radians(angle_deg)), math.sin(math.radians(angle_deg))
+    i, j = [(1, 2), (2, 0), (0, 1)][axis]
+    m = np.eye(3)
+    m[i, i], m[i, j], m[j, i], m[j, j] = c, s, -s, c
+    return m
+
+
 @lru_cache(maxsize=16)
 def _fk5_matrix(equinox: float) -> np.ndarray:
-    """FK5(equinox) -> ICRS is a fixed rotation (precession + frame bias); take it from astropy
-    by transforming the three unit vectors once per equinox."""
-    from astropy.coordinates import FK5, ICRS, CartesianRepresentation
-    from astropy.time import Time
+    """FK5(equinox) -> ICRS: IAU 2006 precession to J2000 (ERFA ``bp06``, as astropy's
+    ``precession_matrix_Capitaine``) then the inverse ICRS -> FK5 J2000 frame bias of USNO
+    Circular 179 (the constants astropy.coordinates uses). ERFA directly, so that reading a
+    header does not import astropy.coordinates (seconds)."""
+    import erfa
 
-    basis = CartesianRepresentation(np.eye(3))
-    frame = FK5(basis, equinox=Time(equinox, format="jyear"))
-    out = frame.transform_to(ICRS()).cartesian
-    return np.vstack([out.x.value, out.y.value, out.z.value])
+    bias = (
+        _axis_rotation(19.9 / 3.6e6, 0)  # -eta0, eta0 = -19.9 mas
+        @ _axis_rotation(9.1 / 3.6e6, 1)  # xi0 = 9.1 mas
+        @ _axis_rotation(-22.9 / 3.6e6, 2)  # da0 = -22.9 mas
+    )
+    jd_tt = 2451545.0 + (equinox - 2000.0) * 365.25  # Julian epoch -> JD (TT)
+    to_epoch = erfa.bp06(jd_tt, 0.0)[1]
+    to_j2000 = erfa.bp06(2451545.0, 0.0)[1]
+    precession = to_j2000 @ to_epoch.T
+    return np.asarray(bias.T @ precession)
 
 
 def _rotate(ra: float, dec: float, matrix: np.ndarray) -> tuple[float, float]:
@@ -268,11 +284,12 @@ def observing_site(keys: Keys) -> Site | None:
 
 @lru_cache(maxsize=64)
 def _geodetic(x: float, y: float, z: float) -> Site:
-    import astropy.units as u
-    from astropy.coordinates import EarthLocation
+    """ITRS geocentric metres -> WGS84 geodetic (ERFA ``gc2gd``, what astropy's EarthLocation
+    uses)."""
+    import erfa
 
-    lon, lat, h = EarthLocation.from_geocentric(x, y, z, unit=u.m).to_geodetic("WGS84")
-    return Site(float(lon.deg), float(lat.deg), float(h.to_value(u.m)))
+    lon, lat, height = erfa.gc2gd(1, np.array([x, y, z]))
+    return Site(math.degrees(float(lon)), math.degrees(float(lat)), float(height))
 
 
 _OLD_DATE = re.compile(r"^(\d\d)/(\d\d)/(\d\d)$")
