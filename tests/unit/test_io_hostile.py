@@ -35,12 +35,18 @@ def _valid_files() -> dict[str, bytes]:
     ]
     table = io.BytesIO()
     fits.HDUList([fits.PrimaryHDU(), fits.BinTableHDU.from_columns(cols)]).writeto(table)
+    cells = np.empty(2, dtype=object)
+    cells[0], cells[1] = np.ones(n, dtype="f4"), np.arange(n, dtype="f4")
+    heap_cols = [fits.Column(name="FLUX", format=f"PE({n})", array=cells), *cols[1:]]
+    heap = io.BytesIO()  # variable-length column: read through astropy, not the direct path
+    fits.HDUList([fits.PrimaryHDU(), fits.BinTableHDU.from_columns(heap_cols)]).writeto(heap)
     csv = "# OBJECT = 'x'\n# RESTFREQ = 1420405751.768\nvel_kms,i,v\n" + "".join(
         f"{-50 + k},{k * 0.1},{-k * 0.01}\n" for k in range(n)
     )
     return {
         "image.fits": image.getvalue(),
         "table.fits": table.getvalue(),
+        "heap.fits": heap.getvalue(),
         "image.fits.gz": gzip.compress(image.getvalue(), mtime=0),
         "spec.csv": csv.encode(),
         "spec.csv.gz": gzip.compress(csv.encode(), mtime=0),

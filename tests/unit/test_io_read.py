@@ -334,3 +334,24 @@ def test_cube_is_not_a_spectrum(tmp_path: Path) -> None:
     h["CTYPE2"], h["CRVAL2"], h["CDELT2"], h["CRPIX2"] = "RA---SIN", 10.0, -0.01, 1.0
     with pytest.raises(SpectrumReadError, match="not a single spectrum"):
         read(_write(tmp_path / "cube.fits", np.ones((4, N)), h))
+
+
+def test_astropy_fallback_for_heap_tables_and_compressed_images(tmp_path: Path) -> None:
+    cells = np.empty(2, dtype=object)
+    cells[0], cells[1] = np.ones(N, dtype="f4"), np.arange(N, dtype="f4")
+    cols = [
+        fits.Column(name="SPECTRUM", format=f"PE({N})", array=cells),
+        fits.Column(name="CRVAL1", format="D", array=np.array([F0, F0])),
+        fits.Column(name="CDELT1", format="D", array=np.array([DF, -DF])),
+        fits.Column(name="CTYPE1", format="4A", array=np.array(["FREQ", "FREQ"])),
+    ]
+    fits.HDUList([fits.PrimaryHDU(), fits.BinTableHDU.from_columns(cols)]).writeto(
+        tmp_path / "h.fits"
+    )
+    rows = read(tmp_path / "h.fits")
+    np.testing.assert_array_equal(rows[1].intensity["I"], np.arange(N)[::-1])
+    comp = fits.CompImageHDU(data=_ramp().astype("f4"), header=_cards(OBJECT="packed"))
+    fits.HDUList([fits.PrimaryHDU(), comp]).writeto(tmp_path / "c.fits")
+    s = read(tmp_path / "c.fits")[0]
+    assert s.source == "packed" and s.origin.hdu == 1
+    np.testing.assert_array_equal(s.intensity["I"], _ramp())
