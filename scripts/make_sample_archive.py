@@ -192,7 +192,7 @@ def recombination(night: Night) -> None:
     trip = [
         Line("H109a", 42.0, 24.0, 0.210),
         Line("He109a", 42.0, 19.0, 0.019),
-        Line("C109a", 41.0, 6.0, 0.012),
+        Line("C109a", 41.0, 6.0, 0.016),
         Line("H137b", 42.0, 25.0, 0.058),
     ]
     simple(
@@ -273,14 +273,14 @@ def recombination(night: Night) -> None:
         night,
         "nebula07_h109a_night2.csv",
         "QRO-Nebula 7",
-        neb7,
+        (neb7[0] + 0.05, neb7[1]),
         band,
         csv_pair,
         unit="K",
         noise=0.0025,
         continuum=0.61,
         kind="CSV (freq_mhz, ta_k) with # metadata",
-        extra="a second pointing, 3 arcmin east of the first, with a different velocity",
+        extra="a second pointing, 3 arcmin east of the first (RA + 0.05 deg), where the gas moves at another velocity",
         write=lambda p, s: write_csv(p, s, intensity_column="ta_k", digits=7, overwrite=ow),
     )
     topocentric(night, band, neb3)
@@ -319,8 +319,8 @@ def topocentric(night: Night, band: np.ndarray, pos: tuple[float, float]) -> Non
     v_shift = C_KMS * (1.0 - factor)
     truth = describe(lines, "K") + (
         f"; continuum 1.33 K; rms 0.0021 K; frequencies TOPOCENTRIC: f_lsrk = f_topo x "
-        f"{factor:.9f} (astropy SpectralCoord), so the lines sit {v_shift:+.2f} km/s away from "
-        "their LSR positions on the file's own axis"
+        f"{factor:.9f} (astropy SpectralCoord), so a line at v_LSR appears near "
+        f"v_LSR {-v_shift:+.2f} km/s on the file's own (topocentric) axis"
     )
     path = night.add(
         "nebula03_h109a_topo.fits",
