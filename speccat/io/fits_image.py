@@ -8,6 +8,7 @@ are small images described by per-row keywords.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -37,18 +38,17 @@ class NoSpectralAxis(ReadProblem):
     """The HDU has no spectral axis (other HDUs of the file may still hold spectra)."""
 
 
-def spectra_from_array(
-    data: np.ndarray, keys: Keys, origin: Origin, fmt: str, unit: str | None = None
-) -> Spectrum:
-    """One Spectrum from an N-d array whose FITS axis i is numpy axis ndim - i.
+@dataclass(frozen=True)
+class _Axes:
+    """Which FITS axes (1-based) are spectral and Stokes, and the celestial CRVALs."""
 
-    ``keys`` holds the WCS and metadata keywords; keywords of axes beyond ``data.ndim``
-    (e.g. per-row RA/DEC axes of a table) describe degenerate axes.
-    """
-    ndim = data.ndim
-    naxes = [data.shape[ndim - i] for i in range(1, ndim + 1)]
-    if any(n == 0 for n in naxes):
-        raise ReadProblem("zero-length axis")
+    spectral: int
+    stokes: int | None
+    celestial: dict[str, float]
+
+
+def _find_axes(keys: Keys, naxes: list[int]) -> _Axes:
+    ndim = len(naxes)
     spectral = stokes = None
     celestial: dict[str, float] = {}
     extra = []
@@ -71,31 +71,42 @@ def spectra_from_array(
         elif n > 1:
             extra.append(i)
     if spectral is None:
-        unknown = [
-            keys.text(f"CTYPE{i}")
-            for i in extra
-            if classify(keys.text(f"CTYPE{i}") or "") == "other"
-        ]
-        if unknown and unknown[0]:
+        unknown = [keys.text(f"CTYPE{i}") for i in extra]
+        unknown = [u for u in unknown if u and classify(u) == "other"]
+        if unknown:
             raise ReadProblem(f"unknown spectral CTYPE {unknown[0]!r}")
         raise NoSpectralAxis("no spectral axis")
     if extra:
         shape = "x".join(str(naxes[i - 1]) for i in extra)
         raise ReadProblem(f"not a single spectrum: {shape} positions besides the spectral axis")
-    n_chan = naxes[spectral - 1]
-    axis = spectral_axis(keys, spectral, n_chan)
+    return _Axes(spectral, stokes, celestial)
+
+
+def spectra_from_array(
+    data: np.ndarray, keys: Keys, origin: Origin, fmt: str, unit: str | None = None
+) -> Spectrum:
+    """One Spectrum from an N-d array whose FITS axis i is numpy axis ndim - i.
+
+    ``keys`` holds the WCS and metadata keywords; keywords of axes beyond ``data.ndim``
+    (e.g. per-row RA/DEC axes of a table) describe degenerate axes.
+    """
+    ndim = data.ndim
+    naxes = [data.shape[ndim - i] for i in range(1, ndim + 1)]
+    if any(n == 0 for n in naxes):
+        raise ReadProblem("zero-length axis")
+    axes = _find_axes(keys, naxes)
+    axis = spectral_axis(keys, axes.spectral, naxes[axes.spectral - 1])
     check_frequencies(axis.freq_hz)
-    labels = (
-        stokes_labels(keys, stokes, naxes[stokes - 1] if stokes <= ndim else 1) if stokes else ["I"]
-    )
-    arr = _as_products(data, spectral, stokes, len(labels))
+    labels = ["I"]
+    if axes.stokes is not None:
+        n_stokes = naxes[axes.stokes - 1] if axes.stokes <= ndim else 1
+        labels = stokes_labels(keys, axes.stokes, n_stokes)
+    arr = _as_products(data, axes.spectral, axes.stokes, len(labels))
     freq = axis.freq_hz
     if freq[0] > freq[-1]:
         freq = freq[::-1].copy()
         arr = arr[:, ::-1]
-    intensity = _products(arr, labels)
-    ra, dec = celestial_position(keys, celestial)
-    velosys = keys.number("VELOSYS")
+    ra, dec = celestial_position(keys, axes.celestial)
     meta = {"format": fmt, "ctype": axis.ctype}
     for key in ("SSYSOBS", "SSYSSRC", "OBSERVER", "LINE", "VSOURCE"):
         text = keys.text(key)
@@ -103,7 +114,7 @@ def spectra_from_array(
             meta[key.lower()] = text
     return Spectrum(
         freq_hz=freq,
-        intensity=intensity,
+        intensity=_products(arr, labels),
         intensity_unit=unit if unit is not None else (keys.text("BUNIT") or ""),
         source=keys.text("OBJECT") or "",
         origin=origin,
@@ -115,7 +126,7 @@ def spectra_from_array(
         specsys=declared_frame(keys, axis.ctype),
         rest_freq_hz=axis.rest_freq_hz,
         velocity_convention=axis.convention,
-        velosys_ms=velosys,
+        velosys_ms=keys.number("VELOSYS"),
         z_source=keys.number("ZSOURCE"),
         meta=meta,
     )
