@@ -14,7 +14,9 @@ import functools
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.fft
 import scipy.linalg
+import scipy.optimize
 
 from speccat.reduce.noise import robust_rms
 
@@ -64,6 +66,26 @@ def _legendre_design(n: int, order: int) -> np.ndarray:
     return out
 
 
+@functools.lru_cache(maxsize=16)
+def _leg_to_power(size: int) -> np.ndarray:
+    """Matrix turning Legendre coefficients into power-series ones (cached; read-only)."""
+    out = np.zeros((size, size))
+    for j in range(size):
+        col = np.polynomial.legendre.leg2poly(np.eye(size)[j])
+        out[: col.size, j] = col
+    out.flags.writeable = False
+    return out
+
+
+@functools.lru_cache(maxsize=8)
+def _gram(n: int, order: int) -> np.ndarray:
+    """A^T A of the Legendre columns over all channels (cached; read-only)."""
+    a = _legendre_design(n, order)
+    out = a.T @ a
+    out.flags.writeable = False
+    return out
+
+
 def _design(n: int, order: int, period: float) -> np.ndarray:
     """Columns: [sin, cos] of the ripple (when period > 0), then P_0..P_order."""
     poly = _legendre_design(n, order)
@@ -87,10 +109,16 @@ def fit_linear(
     top = max_order if fixed_order is None else fixed_order
     top = max(0, min(top, m - n_rip - 2))
     design = _design(n, top, period)
-    a = design[good]
-    yg = y[good]
-    chol = np.linalg.cholesky(a.T @ a)
-    w = scipy.linalg.solve_triangular(chol, a.T @ yg, lower=True)
+    bad = ~good
+    yg = np.where(good, y, 0.0)
+    if period <= 0:  # cached Gram matrix minus the few excluded rows
+        a_bad = design[bad]
+        gram = _gram(n, top) - a_bad.T @ a_bad
+    else:
+        a = design[good]
+        gram = a.T @ a
+    chol = np.linalg.cholesky(gram)
+    w = scipy.linalg.solve_triangular(chol, design.T @ yg, lower=True, check_finite=False)
     rss_all = float(np.dot(yg, yg)) - np.cumsum(w**2)
     n_cols = np.arange(1, design.shape[1] + 1)
     if fixed_order is None:
@@ -102,10 +130,12 @@ def fit_linear(
     else:
         k = design.shape[1] - 1
         best_bic = float(m * np.log(max(rss_all[k], 1e-300) / m) + (k + 1) * np.log(m))
-    beta = scipy.linalg.solve_triangular(chol[: k + 1, : k + 1].T, w[: k + 1], lower=False)
+    beta = scipy.linalg.solve_triangular(
+        chol[: k + 1, : k + 1].T, w[: k + 1], lower=False, check_finite=False
+    )
     leg = beta[n_rip:]
     poly = design[:, n_rip : k + 1] @ leg
-    coeffs = np.polynomial.legendre.leg2poly(leg)
+    coeffs = _leg_to_power(leg.size) @ leg
     if n_rip:
         s_amp, c_amp = float(beta[0]), float(beta[1])
         ripple = design[:, :2] @ beta[:2]
@@ -119,7 +149,7 @@ def fit_linear(
 def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: float) -> float:
     """Period (channels) of a significant sinusoid in the good-channel residual, else 0.
 
-    Periods from 4 channels to a third of the band are searched on a 2x oversampled grid; the
+    Periods from 4 channels to a third of the band are searched on the FFT grid (peak interpolated); the
     peak's normalised power must exceed ln(M / false_alarm) for M independent frequencies.
     """
     n = resid.size
@@ -127,15 +157,15 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     if m < 32 or not np.isfinite(sigma) or sigma <= 0:
         return 0.0
     r = np.where(good, resid - np.mean(resid[good]), 0.0)
-    nfft = 2 * n
-    power = np.abs(np.fft.rfft(r, nfft)) ** 2 / (m * sigma**2)
+    nfft = scipy.fft.next_fast_len(n, real=True)
+    power = np.abs(scipy.fft.rfft(r, nfft)) ** 2 / (m * sigma**2)
     freqs = np.arange(power.size) / nfft
     band = (freqs >= 3.0 / n) & (freqs <= 0.25)
     if not band.any():
         return 0.0
     idx = np.flatnonzero(band)
     best = idx[int(np.argmax(power[idx]))]
-    n_indep = max(idx.size / 2.0, 1.0)
+    n_indep = max(float(idx.size), 1.0)
     if power[best] < np.log(n_indep / false_alarm):
         return 0.0
     lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
@@ -147,15 +177,18 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
 def refine_period(
     y: np.ndarray, good: np.ndarray, max_order: int, fixed_order: int | None, period: float
 ) -> float:
-    """Polish the ripple period by a parabola through the BIC at nearby periods."""
+    """Polish the ripple period: bounded scalar minimisation of the BIC within +/- 0.6 bin."""
     n = y.size
-    step = 0.25 * period * period / (2.0 * n)  # a quarter of the oversampled frequency bin
-    trial = period + step * np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
-    bics = np.array([fit_linear(y, good, max_order, fixed_order, p)[1] for p in trial])
-    coef = np.polyfit(trial - period, bics, 2)
-    if coef[0] <= 0:
-        return float(trial[int(np.argmin(bics))])
-    return float(period + np.clip(-coef[1] / (2 * coef[0]), -2 * step, 2 * step))
+    freq = 1.0 / period
+    half = 0.6 / n
+
+    def cost(f: float) -> float:
+        return fit_linear(y, good, max_order, fixed_order, 1.0 / f)[1]
+
+    res = scipy.optimize.minimize_scalar(
+        cost, bounds=(freq - half, freq + half), method="bounded", options={"xatol": 1e-4 / n}
+    )
+    return float(1.0 / res.x) if res.success else period
 
 
 def fit_baseline(

@@ -16,10 +16,11 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
+import scipy.ndimage
 
 from speccat.reduce.noise import correlation_factor
 
-FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
+FWHM_PER_SIGMA = float(2.0 * np.sqrt(2.0 * np.log(2.0)))
 
 
 @dataclass(frozen=True)
@@ -46,8 +47,10 @@ def _decimation(sigma: float) -> int:
 
 @dataclass(frozen=True)
 class _Plan:
-    """FFT length, and per decimation: kernel rows, transfer functions, squared kernel norms."""
+    """Direct taps for the narrow kernels; FFT length and, per decimation, kernel rows,
+    transfer functions and squared kernel norms for the others."""
 
+    taps: tuple[tuple[int, np.ndarray, float], ...]
     nfft: int
     parts: tuple[tuple[int, np.ndarray, np.ndarray, np.ndarray], ...]
 
@@ -56,20 +59,28 @@ class _Plan:
 def _plan(n: int, sigmas: tuple[float, ...]) -> _Plan:
     sig = np.asarray(sigmas)
     decims = np.array([_decimation(s) for s in sig])
+    taps = []
+    for j in np.flatnonzero(decims == 1):  # narrow: sampled kernel, direct convolution
+        half = int(np.ceil(5.0 * sig[j]))
+        k = np.exp(-0.5 * (np.arange(-half, half + 1) / sig[j]) ** 2)
+        taps.append((int(j), k, float(np.dot(k, k))))
+    broad = decims > 1
+    if not broad.any():
+        return _Plan(tuple(taps), 0, ())
     dmax = int(decims.max())
     pad = int(min(3.0 * sig.max(), 2 * n)) + 8
     nfft = dmax * scipy.fft.next_fast_len(-(-(n + pad) // dmax), real=True)
     f = np.arange(nfft // 2 + 1) / nfft
     parts = []
-    for d in np.unique(decims):
+    for d in np.unique(decims[broad]):
         idx = np.flatnonzero(decims == d)
         keep = (nfft // int(d)) // 2 + 1
         trans = np.exp(-2.0 * np.pi**2 * sig[idx, None] ** 2 * f[None, :keep] ** 2)
         full = np.exp(-4.0 * np.pi**2 * sig[idx, None] ** 2 * f[None, :] ** 2)
-        nyq = full[:, -1] if nfft % 2 == 0 else 0.0
+        nyq = full[:, -1] if nfft % 2 == 0 else np.zeros(idx.size)
         norm2 = (2.0 * full.sum(axis=1) - full[:, 0] - nyq) / nfft
         parts.append((int(d), idx, trans, norm2))
-    return _Plan(nfft, tuple(parts))
+    return _Plan(tuple(taps), nfft, tuple(parts))
 
 
 def filter_bank(
@@ -78,14 +89,21 @@ def filter_bank(
     """S/N spectra ``z`` (one per kernel, decimated by ``d``): filtered / its own sigma."""
     n = resid.size
     plan = _plan(n, tuple(float(s) for s in sigmas))
-    spec = scipy.fft.rfft(resid, plan.nfft)
     corr = correlation_factor(rho, sigmas)
     out: list[tuple[np.ndarray, int]] = [(np.empty(0), 1)] * sigmas.size
-    for d, idx, trans, norm2 in plan.parts:
+    for j, k, norm2 in plan.taps:
+        out[j] = (
+            scipy.ndimage.convolve1d(resid, k, mode="constant") / (rms * np.sqrt(norm2 * corr[j])),
+            1,
+        )
+    if not plan.parts:
+        return out
+    spec = scipy.fft.rfft(resid, plan.nfft)
+    for d, idx, trans, norms in plan.parts:
         m = plan.nfft // d
         n_out = -(-n // d)
         filtered = scipy.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)[:, :n_out]
-        scale = d * rms * np.sqrt(norm2 * corr[idx])
+        scale = d * rms * np.sqrt(norms * corr[idx])
         for row, j in enumerate(idx):
             out[j] = (filtered[row] / scale[row], d)
     return out
@@ -127,13 +145,12 @@ def find_seeds(
     """
     pos, scale, val, sign = [], [], [], []
     for j, (z, d) in enumerate(bank):
-        for sgn in (1.0, -1.0):
-            top, shift = _peaks(sgn * z, threshold)
-            if top.size:
-                pos.append((top + shift) * d)
-                scale.append(np.full(top.size, j))
-                val.append(sgn * z[top])
-                sign.append(np.full(top.size, sgn))
+        top, shift = _peaks(np.abs(z), threshold)
+        if top.size:
+            pos.append((top + shift) * d)
+            scale.append(np.full(top.size, j))
+            val.append(np.abs(z[top]))
+            sign.append(np.sign(z[top]))
     if not pos:
         return []
     p_all, j_all = np.concatenate(pos), np.concatenate(scale)

@@ -11,14 +11,15 @@ Olivero & Longbothum (1977, JQSRT 17, 233) approximation, good to 0.02 %.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.optimize
 import scipy.special
 
-FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
-SQRT2PI = np.sqrt(2.0 * np.pi)
+FWHM_PER_SIGMA = float(2.0 * np.sqrt(2.0 * np.log(2.0)))
+SQRT2PI = float(np.sqrt(2.0 * np.pi))
 
 
 @dataclass(frozen=True)
@@ -100,8 +101,40 @@ def jacobian(x: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
     return cols.reshape(4 * k, -1).T
 
 
+def _gauss_funcs(
+    xs: np.ndarray, y: np.ndarray, k: int
+) -> tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]:
+    """Residual and column Jacobian (3k x m) of k Gaussians, sharing one exp per step."""
+    memo: dict[str, np.ndarray] = {}
+
+    def parts(flat: np.ndarray) -> tuple[np.ndarray, ...]:
+        key = memo.get("key")
+        if key is None or not np.array_equal(key, flat):
+            p = flat.reshape(k, 3)
+            s = np.exp(np.minimum(np.maximum(p[:, 2:3], -12.0), 30.0))
+            t = (xs - p[:, 1:2]) / s
+            g = np.exp(-0.5 * t * t)
+            memo.update(key=flat.copy(), g=g, ag=p[:, 0:1] * g, t=t, s=s)
+        return memo["g"], memo["ag"], memo["t"], memo["s"]
+
+    def resid(flat: np.ndarray) -> np.ndarray:
+        _, ag, _, _ = parts(flat)
+        return np.asarray(ag.sum(axis=0) - y)
+
+    def jac(flat: np.ndarray) -> np.ndarray:
+        g, ag, t, s = parts(flat)
+        out = np.empty((k, 3, xs.size))
+        out[:, 0] = g
+        agt = ag * t
+        out[:, 1] = agt / s
+        out[:, 2] = agt * t
+        return out.reshape(3 * k, xs.size)
+
+    return resid, jac
+
+
 def fit_components(
-    x: np.ndarray, y: np.ndarray, p0: np.ndarray, profile: str, maxfev: int = 400
+    x: np.ndarray, y: np.ndarray, p0: np.ndarray, profile: str, maxfev: int = 200
 ) -> GroupFit:
     """Least-squares fit of ``p0.shape[0]`` components to (x, y); x in channels."""
     k, npar = p0.shape
@@ -109,26 +142,47 @@ def fit_components(
     start = p0.copy()
     start[:, 1] -= x0
     xs = x - x0
+    if profile == "gaussian":
+        resid, jac = _gauss_funcs(xs, y, k)
+    else:
 
-    def resid(flat: np.ndarray) -> np.ndarray:
-        return model(xs, flat.reshape(k, npar), profile) - y
+        def resid(flat: np.ndarray) -> np.ndarray:
+            return model(xs, flat.reshape(k, npar), profile) - y
 
-    def jac(flat: np.ndarray) -> np.ndarray:
-        return jacobian(xs, flat.reshape(k, npar), profile)
+        def jac(flat: np.ndarray) -> np.ndarray:
+            return jacobian(xs, flat.reshape(k, npar), profile).T
 
     with np.errstate(all="ignore"):
         sol, _, _, _, ier = scipy.optimize.leastsq(
-            resid, start.ravel(), Dfun=jac, full_output=True, ftol=1e-10, xtol=1e-10, maxfev=maxfev
+            resid,
+            start.ravel(),
+            Dfun=jac,
+            col_deriv=True,
+            full_output=True,
+            ftol=1e-9,
+            xtol=1e-9,
+            maxfev=maxfev,
         )
-    r = resid(sol)
+        r = resid(sol)
+        jm = jac(sol)
     rss = float(np.dot(r, r))
     dof = max(x.size - sol.size, 1)
-    jm = jac(sol)
-    cov = np.linalg.pinv(jm.T @ jm, rcond=1e-12) * (rss / dof)
+    cov = _inverse(jm @ jm.T) * (rss / dof)
     params = sol.reshape(k, npar).copy()
     params[:, 1] += x0
     ok = bool(ier in (1, 2, 3, 4) and np.all(np.isfinite(params)))
     return GroupFit(params, cov, rss, dof, profile, ok)
+
+
+def _inverse(matrix: np.ndarray) -> np.ndarray:
+    """Inverse of the normal matrix; pseudo-inverse when it is singular or ill-conditioned."""
+    try:
+        out = np.linalg.inv(matrix)
+        if np.all(np.isfinite(out)) and np.all(np.diag(out) >= 0):
+            return out
+    except np.linalg.LinAlgError:
+        pass
+    return np.asarray(np.linalg.pinv(matrix, rcond=1e-12))
 
 
 def voigt_fwhm(fwhm_g: np.ndarray | float, fwhm_l: np.ndarray | float) -> np.ndarray:
@@ -148,6 +202,25 @@ def _derived(p: np.ndarray, profile: str) -> np.ndarray:
     return np.array([peak, p[1], fwhm, p[0], 2.0 * gam])
 
 
+def _gaussian_component(p: np.ndarray, cov: np.ndarray) -> Component:
+    """Peak A, centre c, FWHM = 2.3548 s, area = sqrt(2 pi) A s, with propagated errors."""
+    amp, cen, s = float(p[0]), float(p[1]), float(np.exp(p[2]))
+    area = SQRT2PI * amp * s
+    grad_area = np.array([SQRT2PI * s, 0.0, area])
+    var_area = float(grad_area @ cov @ grad_area)
+    return Component(
+        peak=amp,
+        peak_err=float(np.sqrt(max(cov[0, 0], 0.0))),
+        center=cen,
+        center_err=float(np.sqrt(max(cov[1, 1], 0.0))),
+        fwhm=FWHM_PER_SIGMA * s,
+        fwhm_err=FWHM_PER_SIGMA * s * float(np.sqrt(max(cov[2, 2], 0.0))),
+        area=area,
+        area_err=float(np.sqrt(max(var_area, 0.0))),
+        sigma=s,
+    )
+
+
 def components(fit: GroupFit) -> list[Component]:
     """Derived values with errors propagated through the covariance (central differences)."""
     k, npar = fit.params.shape
@@ -155,6 +228,9 @@ def components(fit: GroupFit) -> list[Component]:
     for i in range(k):
         p = fit.params[i]
         cov = fit.cov[i * npar : (i + 1) * npar, i * npar : (i + 1) * npar]
+        if fit.profile == "gaussian":
+            out.append(_gaussian_component(p, cov))
+            continue
         val = _derived(p, fit.profile)
         grad = np.empty((val.size, npar))
         for j in range(npar):

@@ -29,11 +29,11 @@ def assemble(
     chan = np.arange(n, dtype=float)
     dfdc = np.gradient(freq)
     groups = sorted(groups, key=lambda g: float(np.min(g.params[:, 1])))
-    models = [model(chan, g.params, g.fit.profile) for g in groups]
-    total = np.sum(models, axis=0) if models else np.zeros(n)
+    everything = np.concatenate([g.params for g in groups]) if groups else np.zeros((0, 3))
+    profile = s.profile
     data = np.where(valid, resid, np.nan)
     out: list[LineFit] = []
-    for index, (group, gmodel) in enumerate(zip(groups, models, strict=True)):
+    for index, group in enumerate(groups):
         comps = components(group.fit)
         chi2 = group.fit.rss / group.fit.dof / noise.rms**2
         poor = (not group.fit.success) or chi2 > max(
@@ -41,19 +41,22 @@ def assemble(
         )
         dominant = max(comps, key=lambda c: abs(c.peak))
         sign = 1.0 if dominant.peak >= 0 else -1.0
-        prof = sign * (data - (total - gmodel))[group.lo : group.hi]
+        x = chan[group.lo : group.hi]
+        others = model(x, everything, profile) - model(x, group.params, profile)
+        prof = sign * (data[group.lo : group.hi] - others)
         top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
         widths = [
             peak_fraction_width(prof, frac) if frac * top >= WIDTH_LEVEL_SIGMA * noise.rms else None
             for frac in (0.5, 0.2)
         ]
         for i, comp in enumerate(comps):
-            own = model(chan, group.params[i : i + 1], group.fit.profile)
-            isolated = data - (total - own)
-            extra: dict[str, object] = {}
-            flags = _flags(comp, chi2, poor, len(comps), n, valid, clip, noise, s)
+            lo, hi = _window(comp, n, s.sum_window_fwhm)
+            xs = chan[lo:hi]
+            own = model(xs, group.params[i : i + 1], profile)
+            isolated = data[lo:hi] - (model(xs, everything, profile) - own)
+            flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)
             out.append(
-                _linefit(comp, freq, dfdc, isolated, noise, s, chi2, index, flags, widths, extra)
+                _linefit(comp, freq, dfdc, isolated, (lo, hi), noise, s, chi2, index, flags, widths)
             )
     return sorted(out, key=lambda line: line.center_hz)
 
@@ -68,7 +71,6 @@ def _window(comp: Component, n: int, half_fwhm: float) -> tuple[int, int]:
 
 def _flags(
     comp: Component,
-    chi2: float,
     poor: bool,
     size: int,
     n: int,
@@ -100,21 +102,21 @@ def _linefit(
     comp: Component,
     freq: np.ndarray,
     dfdc: np.ndarray,
-    isolated: np.ndarray,
+    seg: np.ndarray,
+    span: tuple[int, int],
     noise: Noise,
     s: ReduceSettings,
     chi2: float,
     blend: int,
     flags: tuple[str, ...],
     widths: list[float | None],
-    extra: dict[str, object],
 ) -> LineFit:
+    """``seg``: the data minus every other component over the summation window ``span``."""
     n = freq.size
     chan = np.arange(n, dtype=float)
     scale = float(np.interp(comp.center, chan, dfdc))
     inflate = float(np.sqrt(correlation_factor(noise.rho, comp.sigma)[0]))
-    lo, hi = _window(comp, n, s.sum_window_fwhm)
-    seg = isolated[lo:hi]
+    lo, hi = span
     ok = np.isfinite(seg)
     total = direct_sum(seg, dfdc[lo:hi])
     box = box_correlation_factor(noise.rho, int(ok.sum()))
