@@ -127,6 +127,24 @@ def fit_zeeman(
     return float(b_los[0]), float(b_err[0])
 
 
+def line_window(
+    freq_hz: np.ndarray, center_hz: float, fwhm_hz: float, half_width_fwhm: float = 3.0
+) -> slice:
+    """Channels within ``half_width_fwhm`` × FWHM of a line centre (ascending ``freq_hz``).
+
+    The usual fit window for ``fit_zeeman``: the line and some baseline on both sides.
+    """
+    half = abs(float(fwhm_hz)) * half_width_fwhm
+    lo = int(np.searchsorted(freq_hz, center_hz - half, side="left"))
+    hi = int(np.searchsorted(freq_hz, center_hz + half, side="right"))
+    return slice(max(lo, 0), min(hi, int(np.asarray(freq_hz).size)))
+
+
+def split_factor(line_name: str) -> float | None:
+    """Z (Hz/µG) for a catalogue line name (``HI``, ``OH1665``, ``OH1667``), else None."""
+    return SPLIT_HZ_PER_UG.get(line_name.strip().replace(" ", "").upper())
+
+
 def field_from_split(split_hz: float, split_hz_per_ug: float) -> float:
     """B_los (µG) from a measured σ-component separation (Hz): B = Δν / Z."""
     return split_hz / split_hz_per_ug

@@ -89,3 +89,13 @@ def test_published_splitting_factors_and_helpers() -> None:
     assert zeeman.SPLIT_HZ_PER_UG == {"HI": 2.8, "OH1665": 3.27, "OH1667": 1.96}
     assert zeeman.field_from_split(28.0, 2.8) == pytest.approx(10.0)
     assert zeeman.field_from_coefficient(-14.0, 2.8) == pytest.approx(10.0)
+
+
+def test_line_window_and_split_factor_lookup() -> None:
+    window = zeeman.line_window(FREQ, F0, WIDTH_HZ)
+    covered = FREQ[window]
+    assert covered[0] >= F0 - 3 * WIDTH_HZ and covered[-1] <= F0 + 3 * WIDTH_HZ
+    assert covered.size == pytest.approx(6 * WIDTH_HZ / 150.0, abs=2)
+    assert zeeman.line_window(FREQ, FREQ[-1], 1e9) == slice(0, 256)
+    assert zeeman.split_factor("OH1667") == 1.96 and zeeman.split_factor("hi") == 2.8
+    assert zeeman.split_factor("H109a") is None
