@@ -9,7 +9,10 @@ shift small against the line width this gives
 
     V(ν) = −(Z·B_los/2) dI/dν
 
-(Troland & Heiles 1982, ApJ 252, 179; Heiles et al. 1993, the derivative method). The fit is
+(the derivative method: Troland & Heiles 1982, ApJ 252, 179; Heiles et al. 1993). Which
+circular hand lies higher for a receding-pointing field, and the sign of V, differ between
+papers and back ends: the sign here is this program's stated definition (the mapping of a
+feed's RCP/LCP to it is the observer's to check), the magnitude is convention-free. The fit is
 V = a·dI/dν + b·I by least squares over a channel window; b absorbs leakage of I into V;
 B_los = −2a/Z, with the error from the fit's covariance scaled by the residual variance.
 """
