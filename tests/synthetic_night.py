@@ -169,7 +169,7 @@ def _axis(lines: list[TrueLine], rng: np.random.Generator, factor: float,
         widest = max(ln.fwhm_kms for ln in lines)
         span_kms = (hi - lo) / f0 * C_KMS + max(8.0 * widest, min_span_kms)
         chan_kms = min(min(ln.fwhm_kms for ln in lines) / 5.0, 2.0)
-    n = int(min(max(span_kms / chan_kms, 256), 8192))
+    n = int(min(max(span_kms / chan_kms, 1024), 8192))
     half_hz = 0.5 * span_kms / C_KMS * f0
     freq = np.linspace(f0 - half_hz, f0 + half_hz, n) / factor
     return freq + rng.uniform(-0.5, 0.5) * (freq[1] - freq[0])

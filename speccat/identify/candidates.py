@@ -173,21 +173,16 @@ class Pairs:
     galaxy: np.ndarray
 
 
-def _index_ranges(
-    f_hz: np.ndarray, rest_hz: np.ndarray, windows: list[tuple[float, float]]
-) -> list[np.ndarray]:
-    """Per detection, the sorted catalogue indices whose velocity lies in any window."""
-    out = []
-    bounds = [
-        (np.searchsorted(rest_hz, f_hz / (1 - lo / C_KMS), "left"),
-         np.searchsorted(rest_hz, f_hz / (1 - hi / C_KMS), "right"))
-        for lo, hi in windows
-    ]  # fmt: skip
-    for i in range(f_hz.size):
-        parts = [np.arange(a[i], b[i]) for a, b in bounds if b[i] > a[i]]
-        out.append(np.unique(np.concatenate(parts)) if len(parts) > 1 else
-                   (parts[0] if parts else np.empty(0, dtype=int)))  # fmt: skip
-    return out
+def _window_keys(f_hz: np.ndarray, rest_hz: np.ndarray, lo_kms: float, hi_kms: float) -> np.ndarray:
+    """Pair keys (detection × n_lines + line index) of the lines whose velocity for each
+    detection lies in [lo_kms, hi_kms] (radio convention; rest = f / (1 - v/c))."""
+    a = np.searchsorted(rest_hz, f_hz / (1.0 - lo_kms / C_KMS), "left")
+    b = np.searchsorted(rest_hz, f_hz / (1.0 - hi_kms / C_KMS), "right")
+    counts = np.maximum(b - a, 0)
+    total = int(counts.sum())
+    det = np.repeat(np.arange(f_hz.size), counts)
+    start = np.repeat(a - np.concatenate([[0], np.cumsum(counts)[:-1]]), counts)
+    return np.asarray(det * rest_hz.size + start + np.arange(total))
 
 
 def candidate_pairs(
@@ -199,30 +194,28 @@ def candidate_pairs(
     """Every catalogue line within a plausible velocity window of each detection: the Galactic
     window, the window about a known systemic velocity, and — for HI only, when the profile is
     at least GALAXY_MIN_WIDTH_KMS wide — recession velocities up to GALAXY_V_MAX_KMS."""
-    f = np.where(np.isfinite(feats.f_hz) & (feats.f_hz > 0), feats.f_hz, np.nan)
-    windows = [(-window_kms, window_kms)]
+    usable = np.isfinite(feats.f_hz) & (feats.f_hz > 0)
+    f = np.where(usable, feats.f_hz, 0.0)  # f = 0 matches no line
+    keys = [_window_keys(f, cat.rest_hz, -window_kms, window_kms)]
     if systemic is not None and abs(systemic[0]) < 0.9 * C_KMS:
-        windows.append((systemic[0] - window_kms, min(systemic[0] + window_kms, 0.9 * C_KMS)))
-    ranges = _index_ranges(np.nan_to_num(f, nan=0.0), cat.rest_hz, windows)
+        hi = min(systemic[0] + window_kms, 0.9 * C_KMS)
+        keys.append(_window_keys(f, cat.rest_hz, systemic[0] - window_kms, hi))
+    base = np.unique(np.concatenate(keys)) if len(keys) > 1 else keys[0]
     hi_idx = np.flatnonzero(cat.hi)
-    wide = feats.width_hz * C_KMS / np.where(np.isnan(f), np.inf, f) >= GALAXY_MIN_WIDTH_KMS
-    det, idx, galaxy = [], [], []
-    for i, found in enumerate(ranges):
-        if np.isnan(f[i]):
-            continue
-        extra = np.empty(0, dtype=int)
-        if wide[i] and hi_idx.size:
-            v_hi = C_KMS * (1 - f[i] / cat.rest_hz[hi_idx])
-            extra = np.setdiff1d(hi_idx[(v_hi > window_kms) & (v_hi <= GALAXY_V_MAX_KMS)], found)
-        both = np.concatenate([found, extra])
-        det.append(np.full(both.size, i))
-        idx.append(both)
-        galaxy.append(np.arange(both.size) >= found.size)
-    det_a = np.concatenate(det) if det else np.empty(0, dtype=int)
-    idx_a = np.concatenate(idx) if idx else np.empty(0, dtype=int)
-    v = velocity_from_freq(feats.f_hz[det_a], cat.rest_hz[idx_a], "radio")
-    gal = np.concatenate(galaxy) if galaxy else np.empty(0, dtype=bool)
-    return Pairs(cat, det_a.astype(int), idx_a.astype(int), np.asarray(v, dtype=float), gal)
+    galaxy_keys = np.empty(0, dtype=int)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        wide = usable & (feats.width_hz * C_KMS / f >= GALAXY_MIN_WIDTH_KMS)
+    if hi_idx.size and wide.any():
+        v_hi = C_KMS * (1.0 - f[:, None] / cat.rest_hz[hi_idx][None, :])
+        d, h = np.nonzero(wide[:, None] & (v_hi > window_kms) & (v_hi <= GALAXY_V_MAX_KMS))
+        galaxy_keys = np.setdiff1d(d * cat.rest_hz.size + hi_idx[h], base)
+    all_keys = np.concatenate([base, galaxy_keys])
+    galaxy = np.arange(all_keys.size) >= base.size
+    order = np.argsort(all_keys, kind="stable")
+    all_keys, galaxy = all_keys[order], galaxy[order]
+    det, idx = np.divmod(all_keys, cat.rest_hz.size)
+    v = velocity_from_freq(feats.f_hz[det], cat.rest_hz[idx], "radio")
+    return Pairs(cat, det.astype(int), idx.astype(int), np.asarray(v, dtype=float), galaxy)
 
 
 def spreads(pairs: Pairs, feats: Features) -> np.ndarray:

@@ -129,3 +129,39 @@ def test_unknown_frame_is_flagged_never_silent(night: list[sn.Truth], cat: Catal
     for _truth, result in _identified(known, cat):
         assert result.frame_flag is None
         assert all("frame-unknown" not in d.flags for d in result.detections)
+
+
+@pytest.mark.slow  # the reducer takes ~0.3 s per spectrum
+def test_end_to_end_with_the_reducer(night: list[sn.Truth], cat: Catalogue) -> None:
+    """Every fourth spectrum of the night through speccat.reduce.measure, then identify: the
+    lines the reducer finds are identified as well as ideal fits are, within the blending the
+    reducer leaves (C lines on the wing of He lines), and noise yields no identification."""
+    from speccat.reduce import measure
+
+    subset = night[2::4]
+    ok = found = missed = 0
+    v_err: list[float] = []
+    for truth in subset:
+        spec = truth.spectrum
+        result = identify(spec, measure(spec.freq_hz, spec.intensity["I"]), cat)
+        matched = set()
+        for line, i in sn.match(truth, result.measurement.lines):
+            if i is None:
+                missed += bool(line.name)
+                continue
+            matched.add(i)
+            det = result.detections[i]
+            if not line.name:
+                assert det.line is None
+                continue
+            found += 1
+            if det.line is not None and det.line.name == line.name:
+                ok += 1
+                assert det.v_lsr_kms is not None
+                v_err.append(abs(det.v_lsr_kms - line.v_lsr_kms) / line.fwhm_kms)
+        if truth.family in ("noise", "absent"):
+            assert all(d.line is None for d in result.detections)
+    print(f"end to end: {ok}/{found} identified, {missed} lines not found by the reducer")
+    assert found >= 0.9 * (found + missed)
+    assert ok / found >= 0.9
+    assert np.mean(np.array(v_err) < 0.1) >= 0.9
