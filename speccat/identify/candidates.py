@@ -209,13 +209,12 @@ def candidate_pairs(
         v_hi = C_KMS * (1.0 - f[:, None] / cat.rest_hz[hi_idx][None, :])
         d, h = np.nonzero(wide[:, None] & (v_hi > window_kms) & (v_hi <= GALAXY_V_MAX_KMS))
         galaxy_keys = np.setdiff1d(d * cat.rest_hz.size + hi_idx[h], base)
-    all_keys = np.concatenate([base, galaxy_keys])
-    galaxy = np.arange(all_keys.size) >= base.size
-    order = np.argsort(all_keys, kind="stable")
-    all_keys, galaxy = all_keys[order], galaxy[order]
+    all_keys = np.sort(np.concatenate([base, galaxy_keys]))
     det, idx = np.divmod(all_keys, cat.rest_hz.size)
-    v = velocity_from_freq(feats.f_hz[det], cat.rest_hz[idx], "radio")
-    return Pairs(cat, det.astype(int), idx.astype(int), np.asarray(v, dtype=float), galaxy)
+    v = np.asarray(velocity_from_freq(feats.f_hz[det], cat.rest_hz[idx], "radio"), dtype=float)
+    # a wide HI profile beyond the Galactic window is a galaxy, whichever window found it
+    galaxy = cat.hi[idx] & wide[det] & (v > window_kms)
+    return Pairs(cat, det.astype(int), idx.astype(int), v, galaxy)
 
 
 def spreads(pairs: Pairs, feats: Features) -> np.ndarray:

@@ -247,3 +247,84 @@ def test_empty_measurement() -> None:
     spec = _spectrum(1e9, 2e9)
     meas = Measurement("I", 1.0, 0.0, BaselineModel(64, (0.0,)), ())
     assert identify(spec, meas, CAT).detections == ()  # type: ignore[arg-type]
+
+
+# --------------------------------------------------------------------------- scoring terms
+
+
+def test_width_plausibility_inside_outside_and_unresolved() -> None:
+    from speccat.identify.terms import log_width_plausibility
+
+    w = np.array([20.0, 5.0, 200.0, 0.5, 200.0])
+    lo, hi = np.full(5, 10.0), np.full(5, 50.0)
+    resolved = np.array([True, True, True, False, False])
+    out = log_width_plausibility(w, lo, hi, resolved, np.zeros(5))
+    assert out[0] == 0.0  # inside the range
+    assert out[1] < -1.0 and out[2] < -1.0  # a factor 2 or 4 outside: strongly penalised
+    assert out[2] < out[1]  # further outside in log width: worse
+    assert out[3] < -1.0  # unresolved but still narrower than the narrowest plausible width
+    assert out[4] == 0.0  # unresolved: 200 is only an upper bound on the true width
+    looser = log_width_plausibility(w, lo, hi, resolved, np.full(5, 0.5))
+    assert looser[1] > out[1]  # an uncertain width is penalised less
+
+
+def test_background_and_systemic_densities() -> None:
+    from speccat.identify.terms import background_density, systemic_density
+
+    v = np.array([0.0, 150.0, 450.0, 5000.0])
+    bg = background_density(v, np.array([False, False, False, True]), 400.0)
+    assert bg[0] > bg[1] > bg[2]  # Galactic velocities near zero are likeliest
+    assert bg[3] > bg[2]  # a wide HI profile may well be a galaxy
+    spread = np.full(4, 5.0)
+    known = systemic_density(v, spread, bg, (150.0, 8.0))
+    assert known[1] > 10 * bg[1] and known[0] < bg[0]
+    assert np.array_equal(systemic_density(v, spread, bg, None), bg)
+
+
+def test_scores_are_probabilities_with_a_none_alternative() -> None:
+    """All candidates (not only the five kept) and "none of these" sum to one per detection."""
+    from speccat.identify.candidates import candidate_pairs, catalogue_arrays, features, spreads
+    from speccat.identify.joint import joint_scores
+    from speccat.identify.terms import background_density
+
+    fits = [_fit(H_REST, 10.0, 25.0), _fit(_rest("He109a"), 10.0, 20.0, 6), _fit(3e9, 0, 5.0)]
+    feats = features(fits, 1.0)
+    pairs = candidate_pairs(feats, catalogue_arrays(CAT), 400.0, None)  # type: ignore[arg-type]
+    spread = spreads(pairs, feats)
+    bg = background_density(pairs.v_kms, pairs.galaxy, 400.0)
+    base = np.zeros(pairs.idx.size)
+    p_pair, p_none = joint_scores(pairs, base, spread, bg, np.log(bg), 3, np.log(1e-5))
+    totals = np.bincount(pairs.det, weights=p_pair, minlength=3) + p_none
+    assert np.allclose(totals, 1.0)
+    assert p_none[2] == pytest.approx(1.0)  # no candidate at all: certainly none of these
+
+
+def test_header_redshift_galaxy_profile_fragment() -> None:
+    """A reducer may split a galaxy's double-horned profile: a 120 km/s wide piece 150 km/s from
+    the header's systemic velocity is still the galaxy's HI."""
+    z = 0.015
+    v_sys = C_KMS * z / (1 + z)
+    fit = _fit(1_420.4e6, v_sys + 150.0, 120.0, snr=8, chan_kms=5.0)
+    spec = _spectrum(fit.center_hz * 0.995, fit.center_hz * 1.005, z=z)
+    det = _run([fit], spec).detections[0]
+    assert det.line is not None and det.line.name == "HI"
+    assert det.v_lsr_kms == pytest.approx(v_sys + 150.0, abs=1e-6)
+
+
+def test_frame_correction_applied_to_velocity_and_width() -> None:
+    """A barycentric header: the LSRK factor from speccat.physics.doppler moves the centre."""
+    from datetime import UTC, datetime
+
+    spec = _spectrum(22_200e6, 22_260e6, specsys="BARYCENT")
+    spec = Spectrum(freq_hz=spec.freq_hz, intensity=spec.intensity, intensity_unit="K",
+                    source="SRC-A", origin=Origin("fake.fits"), ra_deg=270.0, dec_deg=30.0,
+                    obs_time=datetime(2026, 1, 1, tzinfo=UTC), specsys="BARYCENT")  # fmt: skip
+    fit = _fit(22_235.0e6, -30.0, 1.0, snr=100, chan_kms=0.1)
+    res = _run([fit], spec)
+    factor = res.lsrk_factor
+    assert abs(factor - 1.0) * C_KMS > 5.0 and res.frame_flag is None
+    det = res.detections[0]
+    assert det.line is not None and det.line.name == "H2O22"
+    expected = C_KMS * (1 - fit.center_hz * factor / 22_235.0e6)  # radio convention, LSRK
+    assert det.v_lsr_kms == pytest.approx(expected, abs=1e-9)
+    assert det.fwhm_kms == pytest.approx(fit.fwhm_hz * factor * C_KMS / 22_235.0e6, rel=1e-12)
