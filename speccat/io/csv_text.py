@@ -154,6 +154,9 @@ def read_text(text: str, path: str) -> list[Spectrum]:
     if not intensity:
         raise ReadProblem("data all NaN")
     ra, dec = celestial_position(keys, {})
+    info = {"format": NAME, "ctype": ctype}
+    if len(intensity) < len(products):
+        info["dropped_all_nan"] = ",".join(p[1] for p in products if p[1] not in intensity)
     return [
         Spectrum(
             freq_hz=np.ascontiguousarray(freq[order]),
@@ -171,7 +174,7 @@ def read_text(text: str, path: str) -> list[Spectrum]:
             velocity_convention=convention,
             velosys_ms=keys.number("VELOSYS"),
             z_source=keys.number("ZSOURCE"),
-            meta={"format": NAME, "ctype": ctype},
+            meta=info,
         )
     ]
 

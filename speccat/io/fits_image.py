@@ -107,14 +107,17 @@ def spectra_from_array(
         freq = freq[::-1].copy()
         arr = arr[:, ::-1]
     ra, dec = celestial_position(keys, axes.celestial)
+    intensity = _products(arr, labels)
     meta = {"format": fmt, "ctype": axis.ctype}
+    if len(intensity) < len(labels):
+        meta["dropped_all_nan"] = ",".join(k for k in labels if k not in intensity)
     for key in ("SSYSOBS", "SSYSSRC", "OBSERVER", "LINE", "VSOURCE"):
         text = keys.text(key)
         if text:
             meta[key.lower()] = text
     return Spectrum(
         freq_hz=freq,
-        intensity=_products(arr, labels),
+        intensity=intensity,
         intensity_unit=unit if unit is not None else (keys.text("BUNIT") or ""),
         source=keys.text("OBJECT") or "",
         origin=origin,

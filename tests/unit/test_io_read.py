@@ -355,3 +355,11 @@ def test_astropy_fallback_for_heap_tables_and_compressed_images(tmp_path: Path) 
     s = read(tmp_path / "c.fits")[0]
     assert s.source == "packed" and s.origin.hdu == 1
     np.testing.assert_array_equal(s.intensity["I"], _ramp())
+
+
+def test_all_nan_product_dropped_and_noted(tmp_path: Path) -> None:
+    h = _cards()
+    h["CTYPE2"], h["CRVAL2"], h["CDELT2"], h["CRPIX2"] = "STOKES", 1.0, 3.0, 1.0
+    data = np.stack([_ramp(), np.full(N, np.nan)])
+    s = read(_write(tmp_path / "v.fits", data, h))[0]
+    assert s.stokes == ("I",) and s.meta["dropped_all_nan"] == "V"
