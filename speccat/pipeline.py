@@ -11,10 +11,14 @@ import getpass
 import hashlib
 import os
 import platform
+import signal
+import stat
+import threading
 import time
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timedelta
 from pathlib import Path
@@ -55,17 +59,31 @@ def discover(paths: Iterable[str | Path]) -> tuple[list[str], list[tuple[str, st
                 dirs.sort()
                 for name in sorted(files):
                     if _has_suffix(name):
-                        found[str(Path(root) / name)] = None
+                        _take(str(Path(root) / name), found, problems)
                 for name in dirs:
                     if _has_suffix(name):
                         problems.append((str(Path(root) / name), "is a folder, not a file"))
-        elif p.is_file():
-            found[str(p)] = None
-        elif p.is_symlink():
-            problems.append((str(p), "broken or looping symbolic link"))
+        elif p.exists() or p.is_symlink():
+            _take(str(p), found, problems)
         else:
             problems.append((str(p), "no such file or folder"))
     return list(found), problems
+
+
+def _take(path: str, found: dict[str, None], problems: list[tuple[str, str]]) -> None:
+    """Keep ``path`` if it leads to a regular file; a pipe or a device would block the reader."""
+    try:
+        mode = os.stat(path).st_mode
+    except OSError as exc:
+        link = os.path.islink(path)
+        problems.append((path, "broken or looping symbolic link" if link else str(exc.strerror)))
+        return
+    if stat.S_ISREG(mode):
+        found[path] = None
+    elif stat.S_ISDIR(mode):
+        problems.append((path, "is a folder, not a file"))
+    else:
+        problems.append((path, "not a regular file (a pipe, socket or device)"))
 
 
 def file_digest(path: str) -> tuple[int, str]:
@@ -145,7 +163,9 @@ def measure_file(
 
     reduce_settings = ReduceSettings(detect_sigma=settings.detect_sigma)
     results = []
-    for spectrum in read(path):
+    with _read_time_limit(path):
+        spectra = read(path)
+    for spectrum in spectra:
         stokes = spectrum.primary_stokes
         m = measure(spectrum.freq_hz, spectrum.intensity[stokes], reduce_settings, stokes=stokes)
         result = identify(
@@ -158,6 +178,41 @@ def measure_file(
         )
         results.append(add_zeeman(result))
     return results
+
+
+#: Reading a file may take this long plus one second per MB before it is given up: a hostile
+#: header (a negative GCOUNT, a billion TFIELDS) can send astropy's FITS parser into an endless
+#: or hours-long loop, and one file must never stall a night's ingest.
+READ_TIME_LIMIT_S = 30.0
+
+
+class _ReadTimeout(BaseException):
+    """Raised by SIGALRM inside a stuck reader (BaseException: no reader swallows it)."""
+
+
+@contextmanager
+def _read_time_limit(path: str) -> Iterator[None]:
+    """Interrupt the block after the read limit; only in a main thread (signals need one)."""
+    if threading.current_thread() is not threading.main_thread() or not hasattr(
+        signal, "setitimer"
+    ):
+        yield
+        return
+    try:
+        seconds = READ_TIME_LIMIT_S + os.path.getsize(path) / 1e6
+    except OSError:
+        seconds = READ_TIME_LIMIT_S
+
+    def _alarm(signum: int, frame: object) -> None:
+        raise _ReadTimeout(seconds)
+
+    previous = signal.signal(signal.SIGALRM, _alarm)
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 def process_file(path: str, settings: Settings | None = None) -> FileResult:
@@ -174,6 +229,8 @@ def process_file(path: str, settings: Settings | None = None) -> FileResult:
     except SpeccatError as exc:
         reason = getattr(exc, "reason", None) or str(exc)
         return FileResult(path, size, sha, error=reason)
+    except _ReadTimeout as exc:
+        return FileResult(path, size, sha, error=f"reading took over {exc.args[0]:.0f} s; given up")
     except Exception as exc:  # a file must never take the ingest down
         return FileResult(path, size, sha, error=f"internal error: {type(exc).__name__}: {exc}")
     return FileResult(path, size, sha, spectra=tuple(spectra))
