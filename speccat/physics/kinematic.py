@@ -15,7 +15,8 @@ common practice). Curves:
   R₀ = 8.34 kpc, Θ₀ = 240 km/s, dΘ/dR = −0.2 km/s/kpc (applied here to standard-LSR velocities,
   without their revised solar motion);
 - ``brand1993``: Brand & Blitz 1993, A&A 275, 67, eq. 5: Θ/Θ₀ = a₁ (R/R₀)^a₂ + a₃,
-  a₁ = 1.00767, a₂ = 0.0394, a₃ = 0.00712, R₀ = 8.5 kpc, Θ₀ = 220 km/s.
+  a₁ = 1.00767, a₂ = 0.0394, a₃ = 0.00712, R₀ = 8.5 kpc, Θ₀ = 220 km/s (as published,
+  Θ(R₀) = 1.0148 Θ₀, so gas near the Sun has |v_LSR| ≤ 3.3 km/s rather than 0).
 
 Every curve here has Θ(R)/R decreasing with R, so v_LSR fixes R uniquely.
 """
