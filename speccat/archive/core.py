@@ -40,6 +40,7 @@ from speccat.archive.schema import (
     schema_version,
     sources,
     spectra,
+    spectrum_data,
 )
 from speccat.errors import ArchiveError
 from speccat.model import Detection, FileResult, SpectrumResult
@@ -263,6 +264,15 @@ class Archive(QueryMixin):
         rows = [_spectrum_row(file_id, r, night) for r in results]
         ins = insert(spectra).returning(spectra.c.id, sort_by_parameter_order=True)
         spectrum_ids = conn.execute(ins, rows).scalars().all()
+        blobs = [
+            {
+                "spectrum_id": int(sid),
+                "freq_hz": encode_freq(r.spectrum.freq_hz),
+                "data": encode_data(r.spectrum.intensity),
+            }
+            for sid, r in zip(spectrum_ids, results, strict=True)
+        ]
+        conn.execute(insert(spectrum_data), blobs)
         det_rows: list[dict[str, Any]] = []
         det_objs: list[Detection] = []
         for sid, res, srow in zip(spectrum_ids, results, rows, strict=True):
@@ -335,6 +345,10 @@ class Archive(QueryMixin):
                 },
             )
             conn.execute(stmt, rows)
+            if self.dialect == "sqlite":
+                # fresh planner statistics (sampled, so cheap at 1M rows) after each ingest
+                conn.exec_driver_sql("PRAGMA analysis_limit = 1000")
+                conn.exec_driver_sql("ANALYZE")
         return len(rows)
 
     def source_velocities(self) -> dict[str, float]:
@@ -393,7 +407,6 @@ def _spectrum_row(file_id: int, res: SpectrumResult, night: str) -> dict[str, An
         "stokes": json.dumps(list(s.intensity)),
         "primary_stokes": m.stokes,
         "n_channels": s.n_channels,
-        "freq_hz": encode_freq(s.freq_hz),
         "intensity_unit": s.intensity_unit,
         "rms": clean_float(m.rms),
         "continuum": clean_float(m.continuum),
@@ -408,7 +421,6 @@ def _spectrum_row(file_id: int, res: SpectrumResult, night: str) -> dict[str, An
         ),
         "flags": _joined(m.flags),
         "meta": json.dumps(dict(s.meta), sort_keys=True, default=str),
-        "data": encode_data(s.intensity),
     }
 
 

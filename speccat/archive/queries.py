@@ -20,12 +20,13 @@ from speccat.archive.blobs import decode_data, decode_freq
 from speccat.archive.filters import Filters, clauses
 from speccat.archive.records import (
     JOINED_COLUMNS,
+    RECORDS_BY_ID,
     SQL_COLUMNS,
     StoredSpectrum,
     record_select,
     to_record,
 )
-from speccat.archive.schema import candidates, detections, files, spectra
+from speccat.archive.schema import candidates, detections, files, spectra, spectrum_data
 from speccat.errors import ArchiveError, FilterError
 from speccat.model import BaselineModel, Kind, LineFit
 
@@ -88,7 +89,7 @@ class QueryMixin:
             ids = [int(i) for i in conn.execute(ids_stmt).scalars()]
             if not ids:
                 return []
-            rows = conn.execute(record_select().where(detections.c.id.in_(ids)))
+            rows = conn.execute(RECORDS_BY_ID, {"ids": ids})
             by_id = {int(r.detection_id): to_record(r) for r in rows}
         return [by_id[i] for i in ids]
 
@@ -141,8 +142,9 @@ class QueryMixin:
         """A stored spectrum with its data, baseline and fitted lines (for plotting)."""
         s = spectra.c
         stmt = (
-            select(spectra, files.c.path)
+            select(spectra, files.c.path, spectrum_data.c.freq_hz, spectrum_data.c.data)
             .join(files, files.c.id == s.file_id)
+            .join(spectrum_data, spectrum_data.c.spectrum_id == s.id)
             .where(s.id == spectrum_id)
         )
         fit_stmt = (

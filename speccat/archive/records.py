@@ -8,7 +8,7 @@ from datetime import datetime
 from typing import Any
 
 import numpy as np
-from sqlalchemy import ColumnElement, Select, select
+from sqlalchemy import ColumnElement, Select, bindparam, select
 
 from speccat.archive.schema import detections, files, spectra
 from speccat.model import BaselineModel, LineFit
@@ -108,31 +108,33 @@ SQL_COLUMNS: dict[str, ColumnElement[Any]] = {
     "continuum": spectra.c.continuum,
 }
 JOINED_COLUMNS = frozenset({"file", "intensity_unit", "rms", "ra_deg", "dec_deg", "continuum"})
-_MHZ = frozenset({"rest_freq_mhz", "obs_freq_mhz"})
 
 
 def record_select() -> Select[Any]:
     """SELECT of every record column, detections joined to their spectrum and file."""
-    cols = [SQL_COLUMNS[name].label(name) for name in EXPORT_COLUMNS + EXTRA_COLUMNS]
+    cols = [SQL_COLUMNS[name].label(name) for name in _RECORD_NAMES]
     joined = detections.join(spectra, spectra.c.id == detections.c.spectrum_id).join(
         files, files.c.id == spectra.c.file_id
     )
     return select(*cols).select_from(joined)
 
 
+_RECORD_NAMES = EXPORT_COLUMNS + EXTRA_COLUMNS
+_MHZ_AT = tuple(_RECORD_NAMES.index(n) for n in ("rest_freq_mhz", "obs_freq_mhz"))
+_TIME_AT = _RECORD_NAMES.index("obs_time")
+
+
 def to_record(row: Any) -> dict[str, Any]:
-    """A result row of ``record_select`` as an export record (MHz, ISO times, None = unknown)."""
-    rec = dict(row._mapping)
-    for name in _MHZ:
-        if rec[name] is not None:
-            rec[name] = rec[name] / 1e6
-    stamp = rec["obs_time"]
+    """A result row of ``record_select`` as an export record (MHz, ISO times, None = unknown).
+    Non-finite numbers never reach the archive (``clean_float``), so none come back."""
+    values = list(row)
+    for i in _MHZ_AT:
+        if values[i] is not None:
+            values[i] = values[i] / 1e6
+    stamp = values[_TIME_AT]
     if isinstance(stamp, datetime):
-        rec["obs_time"] = stamp.isoformat()
-    for key, value in rec.items():
-        if isinstance(value, float) and not math.isfinite(value):
-            rec[key] = None
-    return rec
+        values[_TIME_AT] = stamp.isoformat()
+    return dict(zip(_RECORD_NAMES, values, strict=True))
 
 
 def clean_float(value: float | None) -> float | None:
@@ -175,3 +177,7 @@ class StoredSpectrum:
     @property
     def stokes(self) -> tuple[str, ...]:
         return tuple(self.intensity)
+
+
+#: Records of a list of detection ids (``ids``, an expanding bound parameter); built once.
+RECORDS_BY_ID = record_select().where(detections.c.id.in_(bindparam("ids", expanding=True)))

@@ -100,17 +100,30 @@ spectra = Table(
     Column("stokes", Text, nullable=False),  # JSON list, order of the products in ``data``
     Column("primary_stokes", String(10), nullable=False),
     Column("n_channels", Integer, nullable=False),
-    Column("freq_hz", LargeBinary, nullable=False),  # zlib(float64 little-endian)
     Column("intensity_unit", String(40), nullable=False),
     Column("rms", Float),
     Column("continuum", Float),
     Column("baseline", Text, nullable=False),  # JSON of BaselineModel fields
     Column("flags", Text, nullable=False),  # ";"-joined measurement flags
     Column("meta", Text, nullable=False),  # JSON of Spectrum.meta
-    Column("data", LargeBinary, nullable=False),  # zlib(float32 LE, products concatenated)
     Index("ix_spectra_file", "file_id"),
     Index("ix_spectra_source", "source"),
     Index("ix_spectra_night", "night"),
+)
+
+# The arrays live apart so that the spectra rows stay small (fast joins, scans and reports).
+spectrum_data = Table(
+    "spectrum_data",
+    metadata,
+    Column(
+        "spectrum_id",
+        _ID,
+        ForeignKey("spectra.id", ondelete="CASCADE"),
+        primary_key=True,
+        autoincrement=False,
+    ),
+    Column("freq_hz", LargeBinary, nullable=False),  # blobs.encode_freq: float64, exact
+    Column("data", LargeBinary, nullable=False),  # blobs.encode_data: float32, products in order
 )
 
 detections = Table(
@@ -167,20 +180,25 @@ detections = Table(
     Column("night", String(100), nullable=False),
     Column("obs_time", DateTime),
     Index("ix_det_spectrum", "spectrum_id"),
+    # default order (snr desc, id desc); equality filters + default order read one index range
     Index("ix_det_snr", "snr", "id"),
-    Index("ix_det_source", "source_lc", "id"),
-    Index("ix_det_species", "species_lc", "id"),
-    Index("ix_det_line", "line", "id"),
+    Index("ix_det_source", "source_lc", "snr", "id"),
+    Index("ix_det_species", "species_lc", "snr", "id"),
+    Index("ix_det_line", "line", "snr", "id"),
+    Index("ix_det_night", "night", "snr", "id"),
+    Index("ix_det_kind", "kind", "snr", "id"),
+    # range filters: covering (col, snr) for the default order, (col, id) to sort by col
     Index("ix_det_vlsr", "v_lsr_kms", "id"),
-    Index("ix_det_night", "night", "id"),
-    Index("ix_det_obs_time", "obs_time", "id"),
+    Index("ix_det_vlsr_snr", "v_lsr_kms", "snr"),
     Index("ix_det_center", "center_hz", "id"),
-    Index("ix_det_kind", "kind", "snr"),
-    Index("ix_det_species_vlsr", "species_lc", "v_lsr_kms"),
-    Index("ix_det_line_vlsr", "line", "v_lsr_kms"),
-    Index("ix_det_source_night", "source_lc", "night"),
-    Index("ix_det_night_snr", "night", "snr"),
-    Index("ix_det_source_species", "source_lc", "species_lc"),
+    Index("ix_det_center_snr", "center_hz", "snr"),
+    Index("ix_det_obs_time", "obs_time", "id"),
+    Index("ix_det_obs_time_snr", "obs_time", "snr"),
+    # combinations the filters use together
+    Index("ix_det_species_vlsr", "species_lc", "v_lsr_kms", "snr"),
+    Index("ix_det_line_vlsr", "line", "v_lsr_kms", "snr"),
+    Index("ix_det_source_night", "source_lc", "night", "snr"),
+    Index("ix_det_night_species", "night", "species_lc", "snr"),
 )
 
 candidates = Table(
