@@ -234,11 +234,11 @@ def log_missing_companion(
     f_exp = pairs.cat.leader_hz[pairs.idx] * (1.0 - pairs.v_kms / C_KMS)
     lo, hi = band_lsrk_hz
     check = np.isfinite(f_exp) & (f_exp > lo) & (f_exp < hi)
-    d = pairs.det
-    tol = np.maximum.reduce(
-        [spread_kms * f_exp / C_KMS, 0.5 * feats.width_hz[d], 3.0 * feats.f_err_hz[d]]
-    )
-    seen = np.any(np.abs(feats.f_hz[None, :] - f_exp[:, None]) <= tol[:, None], axis=1)
+    # seen: some detection within 3 spreads of where the companion should be, or within half
+    # that detection's own width (a broad H line's centre need not match a narrow C line's)
+    tol = (3.0 * spread_kms * f_exp / C_KMS)[:, None]
+    tol = np.maximum(tol, 0.5 * feats.width_hz[None, :])
+    seen = np.any(np.abs(feats.f_hz[None, :] - f_exp[:, None]) <= tol, axis=1)
     return np.where(check & ~seen, math.log(MISSING_COMPANION_FACTOR), 0.0)
 
 
