@@ -67,8 +67,8 @@ SPECSYS_VALUES = {
 class Keys:
     """Case-insensitive keyword lookup over a plain dict, with typed getters.
 
-    Values may be str, int, float, bool or numpy scalars. Missing or blank values give None;
-    a present value of the wrong type raises ReadProblem naming the keyword.
+    Values may be str, int, float, bool or numpy scalars. Missing, blank or NaN values give
+    None; a present value of the wrong type raises ReadProblem naming the keyword.
     """
 
     __slots__ = ("_d",)
@@ -121,9 +121,7 @@ class Keys:
             out = float(value)
         except (TypeError, ValueError):
             raise ReadProblem(f"{key} is not a number") from None
-        if not math.isfinite(out):
-            raise ReadProblem(f"{key} is not finite")
-        return out
+        return out if math.isfinite(out) else None  # NaN (e.g. a table's empty cell): unknown
 
 
 def rest_frequency_hz(keys: Keys) -> float | None:

@@ -150,3 +150,19 @@ def test_uneven_velocity_axis_refused(tmp_path: Path) -> None:
     with pytest.raises(SpeccatError, match="not evenly spaced"):
         write_fits_image(tmp_path / "a.fits", s, axis="VOPT")
     assert not (tmp_path / "a.fits").exists()
+
+
+def test_table_rows_with_unknown_metadata(tmp_path: Path) -> None:
+    known = _spectrum(32, 1.42e9, 1e4, ("I",), 1)
+    unknown = Spectrum(
+        freq_hz=known.freq_hz,
+        intensity=known.intensity,
+        intensity_unit="Jy",
+        source="",
+        origin=Origin("memory"),
+    )
+    write_fits_table(tmp_path / "t.fits", [known, unknown])
+    first, second = read(tmp_path / "t.fits")
+    assert first.ra_deg == known.ra_deg and first.obs_time == known.obs_time
+    assert second.ra_deg is None and second.obs_time is None and second.site is None
+    assert second.specsys == "" and second.velosys_ms is None
