@@ -117,7 +117,10 @@ def fit_linear(
     else:
         a = design[good]
         gram = a.T @ a
-    chol = np.linalg.cholesky(gram)
+    try:
+        chol = np.linalg.cholesky(gram)
+    except np.linalg.LinAlgError:  # degenerate columns (e.g. ripple aliasing): regularise
+        chol = np.linalg.cholesky(gram + np.eye(gram.shape[0]) * 1e-9 * max(np.trace(gram), 1.0))
     w = scipy.linalg.solve_triangular(chol, design.T @ yg, lower=True, check_finite=False)
     rss_all = float(np.dot(yg, yg)) - np.cumsum(w**2)
     n_cols = np.arange(1, design.shape[1] + 1)
@@ -206,6 +209,8 @@ def fit_baseline(
 ) -> tuple[BaselineFit, np.ndarray]:
     """Iterative baseline: fit, clip |resid| > clip_sigma, dilate clipped runs, refit.
 
+    The clipping level uses the MAD of every fourth good channel when there are many (2.6 %
+    precision at 16,000 channels is ample for a 3-sigma clip; the reported rms uses them all).
     ``start`` (good-channel mask, ripple period) warm-starts from an earlier call. Stops when
     fewer than 0.2 % of the channels change. Returns the baseline and the mask of channels it
     was fitted on (valid, line-free, unclipped). Invalid channels of ``y`` may hold anything.
@@ -219,13 +224,13 @@ def fit_baseline(
     tolerance = max(2, int(0.002 * y.size))
     for it in range(max_iter):
         resid = y - fit.total
-        sigma = robust_rms(resid[good])
+        sigma = robust_rms(resid[good][::4] if good.sum() > 4000 else resid[good])
         clipped = valid & (np.abs(resid) > clip_sigma * sigma)
         new_good = free & ~dilate_runs(clipped)
         if new_good.sum() < max(8, 0.2 * valid.sum()):
             new_good = good
         new_period = period
-        if ripple and it < 2:
+        if ripple and it < (1 if start is not None else 2):
             found = find_ripple(y - fit.poly, new_good, sigma, ripple_false_alarm)
             same = bool(found and period and abs(found - period) < 0.02 * period)
             if found and not same:

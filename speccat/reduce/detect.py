@@ -114,8 +114,9 @@ def _peaks(u: np.ndarray, threshold: float) -> tuple[np.ndarray, np.ndarray]:
     above = np.flatnonzero(u > threshold)
     if above.size == 0:
         return above, np.empty(0)
-    left = np.concatenate(([-np.inf], u[:-1]))[above]
-    right = np.concatenate((u[1:], [-np.inf]))[above]
+    last = u.size - 1
+    left = np.where(above > 0, u[np.maximum(above - 1, 0)], -np.inf)
+    right = np.where(above < last, u[np.minimum(above + 1, last)], -np.inf)
     here = u[above]
     top = above[(here >= left) & (here > right)]
     lo = u[np.maximum(top - 1, 0)]

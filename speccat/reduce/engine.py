@@ -45,7 +45,10 @@ def reach_sigma(params: np.ndarray) -> np.ndarray:
 
 
 def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
-    """Indices of components whose +/- 3 sigma intervals overlap (chains), in centre order."""
+    """Indices of components whose +/- 3 sigma intervals overlap (chains), in centre order.
+
+    A chain longer than ``max_components`` keeps its strongest members (|A| x sigma).
+    """
     if params.shape[0] == 0:
         return []
     order = np.argsort(params[:, 1])
@@ -54,8 +57,11 @@ def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
     reach = np.maximum.accumulate(hi)
     breaks = np.flatnonzero(lo[1:] >= reach[:-1]) + 1
     out: list[np.ndarray] = []
+    strength = np.abs(params[:, 0]) * np.exp(np.clip(params[:, 2], -30, 30))
     for chunk in np.split(order, breaks):
-        out.extend(chunk[i : i + max_components] for i in range(0, chunk.size, max_components))
+        if chunk.size > max_components:  # keep the strongest; the rest is dropped
+            chunk = np.sort(chunk[np.argsort(-strength[chunk])[:max_components]])
+        out.append(chunk)
     return out
 
 

@@ -37,7 +37,11 @@ def _validate(freq_hz: np.ndarray, intensity: np.ndarray) -> tuple[np.ndarray, n
 
 
 def saturated(y: np.ndarray, valid: np.ndarray, min_run: int = 3) -> np.ndarray:
-    """Channels in runs of >= ``min_run`` equal to the data's maximum or minimum (clipping)."""
+    """Channels in runs of >= ``min_run`` equal to the data's maximum or minimum (clipping).
+
+    When such runs cover more than a quarter of the data, the data are taken to be constant or
+    coarsely quantised rather than clipped, and nothing is marked.
+    """
     out = np.zeros(y.size, dtype=bool)
     if not valid.any():
         return out
@@ -49,6 +53,8 @@ def saturated(y: np.ndarray, valid: np.ndarray, min_run: int = 3) -> np.ndarray:
         starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
         long = (ends - starts) >= min_run
         out |= intervals_mask(y.size, starts[long], ends[long])
+    if np.count_nonzero(out) > valid.sum() // 4:
+        return np.zeros(y.size, dtype=bool)  # (nearly) constant data, not a saturated recorder
     return out
 
 
@@ -84,6 +90,16 @@ def _line_mask(params: np.ndarray, n: int, dilate_fwhm: float) -> np.ndarray:
     return intervals_mask(n, np.floor(params[:, 1] - half), np.ceil(params[:, 1] + half) + 1)
 
 
+def _leak(params: np.ndarray, fresh: np.ndarray, n_coeffs: int, profile: str) -> float:
+    """Rough bound on the baseline shift caused by line flux on channels it was fitted to:
+    (number of coefficients) x sum |line model| over those channels / number of channels."""
+    idx = np.flatnonzero(fresh)
+    if idx.size == 0:
+        return 0.0
+    flux = float(np.sum(np.abs(model(idx.astype(float), params, profile))))
+    return (n_coeffs + 2) * flux / fresh.size
+
+
 def measure(
     freq_hz: np.ndarray,
     intensity: np.ndarray,
@@ -117,6 +133,8 @@ def measure(
         if params.shape[0] == 0:
             break
         line_mask = _line_mask(params, n, s.mask_dilate_fwhm)
+        if _leak(params, line_mask & good, len(base.coeffs), s.profile) < 0.05 * noise.rms:
+            break  # the clipping already kept (nearly) all line flux out of the baseline
         new_base, good, new_noise = _baseline(
             yv, valid, line_mask, s, (good, base.ripple_period_chan)
         )
