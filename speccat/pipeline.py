@@ -262,6 +262,7 @@ class IngestSummary:
     detections: int = 0
     identified: int = 0
     per_line: Counter[str] = field(default_factory=Counter)
+    sources: set[str] = field(default_factory=set)
     failures: list[tuple[str, str]] = field(default_factory=list)
     seconds: float = 0.0
 
@@ -374,7 +375,8 @@ def ingest(
         summary.night = night_label(earliest) if earliest is not None else provisional
         if summary.files_stored:
             archive.relabel_run(run_id, summary.night)
-    archive.update_sources()
+    if summary.sources:
+        archive.update_sources(sorted(summary.sources))
     summary.seconds = time.perf_counter() - t0
     archive.finish_run(run_id, summary.as_dict())
     return summary
@@ -384,6 +386,7 @@ def _count(summary: IngestSummary, result: FileResult) -> None:
     summary.files_stored += 1
     for s in result.spectra:
         summary.spectra += 1
+        summary.sources.add(s.spectrum.source)
         for d in s.detections:
             summary.detections += 1
             if d.line is not None:
