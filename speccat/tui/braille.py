@@ -143,9 +143,15 @@ def nice_ticks(lo: float, hi: float, target: int = 5) -> list[float]:
         return []
     raw = (hi - lo) / target
     mag = 10.0 ** math.floor(math.log10(raw))
-    step = next(m * mag for m in (1.0, 2.0, 5.0, 10.0) if m * mag >= raw)
-    first = math.ceil(lo / step - 1e-9) * step
-    count = math.floor((hi - first) / step + 1e-9) + 1
+    steps = [m * mag for m in (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0)]
+    k = next(i for i, st in enumerate(steps) if st >= raw * (1 - 1e-9))
+    while True:  # the round step nearest the target, but never fewer than two ticks
+        step = steps[k]
+        first = math.ceil(lo / step - 1e-9) * step
+        count = math.floor((hi - first) / step + 1e-9) + 1
+        if count >= 2 or k == 0:
+            break
+        k -= 1
     return [round(first + i * step, 12) for i in range(count)]
 
 

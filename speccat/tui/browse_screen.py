@@ -41,6 +41,8 @@ class ExportJob:
 class BrowseScreen(ReportsWorkerFailures, Screen[None]):
     """Filters, the detection table and the status line; Enter opens the inspector."""
 
+    AUTO_FOCUS = "#detections"
+
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("slash", "edit_filters", "Filters", id="browse.filters"),
         Binding("escape", "to_table", "Back to the table", show=False, id="browse.to_table"),

@@ -86,7 +86,7 @@ def compose_plot(data: PlotData, width: int, height: int) -> list[list[Segment]]
     """The plot as rows of (text, role) segments, exactly ``height`` rows of ``width`` cells."""
     plot_w = width - MARGIN
     if plot_w < 8 or height < 5:
-        return [[("(window too small for the plot)"[:width].ljust(width), "label")]] + [
+        return [[("(too small)"[:width].ljust(width), "label")]] + [
             [(" " * width, "label")] for _ in range(max(height - 1, 0))
         ]
     x = np.asarray(data.x, dtype=float)

@@ -126,6 +126,12 @@ class FilterForm(ReportsWorkerFailures, Widget):
     def on_mount(self) -> None:
         self.show_message("no filter: every detection (/ edits the filters)")
 
+    def on_descendant_focus(self) -> None:
+        if not self.query_one("#filter-message", Label).has_class("-error"):
+            self.show_message(
+                "editing filters: applied as you type · tab next field · esc to table"
+            )
+
     def on_resize(self) -> None:
         # three columns fit 80 cells; wide terminals get the whole form on fewer rows
         self.query_one(Grid).styles.grid_size_columns = max(3, min(5, self.size.width // 38))
