@@ -247,3 +247,27 @@ class FileResult:
     sha256: str
     spectra: tuple[SpectrumResult, ...] = ()
     error: str | None = None
+
+
+def with_total_intensity(spectrum: Spectrum) -> Spectrum:
+    """Add Stokes I (and V) derived from polarization products when the file has none.
+
+    Circular feeds: I = (RR + LL)/2, V = (RR - LL)/2; linear feeds: I = (XX + YY)/2 (the usual
+    definitions for products each calibrated as total intensity; common practice). The original
+    products are kept; a spectrum that already has I is returned unchanged.
+    """
+    prods = spectrum.intensity
+    if "I" in prods:
+        return spectrum
+    extra: dict[str, np.ndarray] = {}
+    if "RR" in prods and "LL" in prods:
+        extra["I"] = 0.5 * (prods["RR"] + prods["LL"])
+        if "V" not in prods:
+            extra["V"] = 0.5 * (prods["RR"] - prods["LL"])
+    elif "XX" in prods and "YY" in prods:
+        extra["I"] = 0.5 * (prods["XX"] + prods["YY"])
+    if not extra:
+        return spectrum
+    from dataclasses import replace
+
+    return replace(spectrum, intensity={**extra, **prods})

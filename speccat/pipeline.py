@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING, Any
 from speccat import __version__
 from speccat.config import Settings
 from speccat.errors import SpeccatError
-from speccat.model import Detection, FileResult, SpectrumResult
+from speccat.model import Detection, FileResult, SpectrumResult, with_total_intensity
 
 if TYPE_CHECKING:
     from speccat.archive import Archive
@@ -165,7 +165,7 @@ def measure_file(
     results = []
     with _read_time_limit(path):
         spectra = read(path)
-    for spectrum in spectra:
+    for spectrum in map(with_total_intensity, spectra):
         stokes = spectrum.primary_stokes
         m = measure(spectrum.freq_hz, spectrum.intensity[stokes], reduce_settings, stokes=stokes)
         result = identify(
