@@ -263,7 +263,10 @@ def _deg() -> Any:
 
 
 def observing_site(keys: Keys) -> Site | None:
-    """OBSGEO-X/Y/Z (ITRS metres), else OBSGEO-L/B/H, else SITELONG/SITELAT/SITEELEV."""
+    """OBSGEO-X/Y/Z (ITRS metres), else OBSGEO-L/B/H, else SITELONG/SITELAT/SITEELEV.
+
+    Longitudes are east-positive degrees (Paper III's OBSGEO-L convention, also assumed for
+    SITELONG, which has no standard definition); heights metres above the WGS84 ellipsoid."""
     xyz = [keys.number(f"OBSGEO-{a}") for a in "XYZ"]
     if all(v is not None for v in xyz):
         x, y, z = (float(v) for v in xyz if v is not None)
