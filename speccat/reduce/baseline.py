@@ -222,6 +222,7 @@ def fit_baseline(
     period = 0.0 if start is None or not ripple else start[1]
     fit, _ = fit_linear(y, good, max_order, fixed_order, period)
     tolerance = max(2, int(0.002 * y.size))
+    changed_before = True
     for it in range(max_iter):
         resid = y - fit.total
         sigma = robust_rms(resid[good][::4] if good.sum() > 4000 else resid[good])
@@ -230,13 +231,15 @@ def fit_baseline(
         if new_good.sum() < max(8, 0.2 * valid.sum()):
             new_good = good
         new_period = period
-        if ripple and it < (1 if start is not None else 2):
+        search = it == 0 or (it == 1 and start is None and (period > 0 or changed_before))
+        if ripple and search:
             found = find_ripple(y - fit.poly, new_good, sigma, ripple_false_alarm)
             same = bool(found and period and abs(found - period) < 0.02 * period)
             if found and not same:
                 found = refine_period(y, new_good, max_order, fixed_order, found)
             new_period = period if same else found
         changed = int(np.count_nonzero(new_good != good))
+        changed_before = changed > 0.01 * y.size
         if changed <= tolerance and new_period == period and (it > 0 or start is not None):
             break
         good, period = new_good, new_period

@@ -105,17 +105,17 @@ def _gauss_funcs(
     xs: np.ndarray, y: np.ndarray, k: int
 ) -> tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]:
     """Residual and column Jacobian (3k x m) of k Gaussians, sharing one exp per step."""
-    memo: dict[str, np.ndarray] = {}
+    memo: dict[str, object] = {}
 
     def parts(flat: np.ndarray) -> tuple[np.ndarray, ...]:
-        key = memo.get("key")
-        if key is None or not np.array_equal(key, flat):
+        key = flat.tobytes()
+        if memo.get("key") != key:
             p = flat.reshape(k, 3)
             s = np.exp(np.minimum(np.maximum(p[:, 2:3], -12.0), 30.0))
             t = (xs - p[:, 1:2]) / s
             g = np.exp(-0.5 * t * t)
-            memo.update(key=flat.copy(), g=g, ag=p[:, 0:1] * g, t=t, s=s)
-        return memo["g"], memo["ag"], memo["t"], memo["s"]
+            memo["key"], memo["parts"] = key, (g, p[:, 0:1] * g, t, s)
+        return memo["parts"]  # type: ignore[return-value]
 
     def resid(flat: np.ndarray) -> np.ndarray:
         _, ag, _, _ = parts(flat)

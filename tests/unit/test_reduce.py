@@ -206,3 +206,29 @@ def test_line_model_matches_fit(rng: np.random.Generator) -> None:
     assert voigt.min() == pytest.approx(-1.0, rel=1e-3)
     half = fine[voigt <= -0.5]
     assert (half[-1] - half[0]) / DF == pytest.approx(20.0, abs=0.05)
+
+
+@pytest.mark.parametrize(
+    "kind", ["zeros", "constant", "inf-channel", "quantised", "short", "huge", "half-nan"]
+)
+def test_awkward_inputs_measure_cleanly(rng: np.random.Generator, kind: str) -> None:
+    chan, freq = _axis(1024)
+    y = {
+        "zeros": np.zeros(chan.size),
+        "constant": np.full(chan.size, 5.0),
+        "inf-channel": np.where(chan == 100, np.inf, rng.normal(0.0, 1.0, chan.size)),
+        "quantised": np.round(rng.normal(0.0, 1.0, chan.size)),
+        "short": rng.normal(0.0, 1.0, chan.size),
+        "huge": rng.normal(0.0, 1.0, chan.size) * 1e30,
+        "half-nan": np.where(chan % 2 == 0, np.nan, rng.normal(0.0, 1.0, chan.size)),
+    }[kind]
+    if kind == "short":
+        y, freq = y[:16], freq[:16]
+    m = measure(freq, y)
+    assert np.isfinite(m.rms) and m.rms >= 0 and np.isfinite(m.continuum)
+    assert m.lines == ()
+    assert ("nan-channels" in m.flags) == (kind in ("inf-channel", "half-nan"))
+    assert "clipped" not in m.flags
+    if kind == "quantised":
+        # rounding to integers adds 1/12 to the variance (Sheppard's correction, common practice)
+        assert m.rms == pytest.approx(np.sqrt(1 + 1 / 12), rel=0.06)
