@@ -101,7 +101,7 @@ def _mutated(draw: st.DrawFn) -> tuple[str, bytes]:
         elif kind == "card" and not name.endswith(".gz"):
             # overwrite a header value with printable junk (numbers, quotes, huge exponents)
             junk = draw(st.sampled_from(["0", "-1E400", "'XYZ'", "NaN", "T", "1D3", "''", "99999"]))
-            start = at - at % 80 + 10 if at % 2880 < 2880 else at
+            start = at - at % 80 + 10  # the value field of the card that holds byte `at`
             data[start : start + 20] = junk.ljust(20).encode()[: len(data[start : start + 20])]
     return name, bytes(data)
 
