@@ -34,11 +34,14 @@ if TYPE_CHECKING:
 
 @dataclass(frozen=True)
 class Features:
-    """Per-detection arrays in the LSRK frame (Hz); width is max(FWHM, W50)."""
+    """Per-detection arrays in the LSRK frame (Hz). ``width_hz`` is the fitted FWHM;
+    ``profile_width_hz`` max(FWHM, W50), which suits a galaxy's flat-topped or double-horned
+    profile (W50 of a blended line can take in its neighbours, so only galaxies use it)."""
 
     f_hz: np.ndarray
     f_err_hz: np.ndarray
     width_hz: np.ndarray
+    profile_width_hz: np.ndarray
     width_rel_err: np.ndarray
     resolved: np.ndarray
     absorption: np.ndarray
@@ -56,7 +59,8 @@ def features(fits: Sequence[LineFit], factor: float) -> Features:
     return Features(
         f_hz=f,
         f_err_hz=np.where(np.isfinite(err), np.abs(err), 0.0),
-        width_hz=np.fmax(fwhm, w50),
+        width_hz=fwhm,
+        profile_width_hz=np.fmax(fwhm, w50),
         width_rel_err=np.where(np.isfinite(rel), np.clip(rel, 0.0, 1.0), 1.0),
         resolved=cols[:, 5] >= RESOLVED_CHANNELS,
         absorption=np.array([f.kind == Kind.ABSORPTION for f in fits], dtype=bool),
@@ -204,7 +208,7 @@ def candidate_pairs(
     hi_idx = np.flatnonzero(cat.hi)
     galaxy_keys = np.empty(0, dtype=int)
     with np.errstate(divide="ignore", invalid="ignore"):
-        wide = usable & (feats.width_hz * C_KMS / f >= GALAXY_MIN_WIDTH_KMS)
+        wide = usable & (feats.profile_width_hz * C_KMS / f >= GALAXY_MIN_WIDTH_KMS)
     if hi_idx.size and wide.any():
         v_hi = C_KMS * (1.0 - f[:, None] / cat.rest_hz[hi_idx][None, :])
         d, h = np.nonzero(wide[:, None] & (v_hi > window_kms) & (v_hi <= GALAXY_V_MAX_KMS))
@@ -217,11 +221,12 @@ def candidate_pairs(
     return Pairs(cat, det.astype(int), idx.astype(int), v, galaxy)
 
 
-def spreads(pairs: Pairs, feats: Features) -> np.ndarray:
-    """Velocity spread about the source velocity per pair, widened by the centre error."""
+def spreads(pairs: Pairs, feats: Features) -> tuple[np.ndarray, np.ndarray]:
+    """Velocity spread (km/s) of each pair about the source velocity: the class spread alone,
+    and widened by the pair's centre error."""
     spread = np.where(pairs.galaxy, SPREAD_KMS["galaxy"], pairs.cat.spread_kms[pairs.idx])
     v_err = C_KMS * feats.f_err_hz[pairs.det] / feats.f_hz[pairs.det]
-    return np.asarray(np.hypot(spread, v_err))
+    return spread, np.asarray(np.hypot(spread, v_err))
 
 
 def log_missing_companion(

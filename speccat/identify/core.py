@@ -24,9 +24,9 @@ from speccat.identify.terms import (
     GALAXY_MAX_WIDTH_KMS,
     GALAXY_MIN_WIDTH_KMS,
     MAX_CANDIDATES,
-    NONE_PRIOR,
     background_density,
     log_kind,
+    log_none,
     log_prior,
     log_tuned,
     log_width_plausibility,
@@ -59,7 +59,8 @@ def _base_scores(
                     cat.width_min_kms[k])  # fmt: skip
     wmax = np.where(cat.hi[k], np.maximum(cat.width_max_kms[k], GALAXY_MAX_WIDTH_KMS),
                     cat.width_max_kms[k])  # fmt: skip
-    width_kms = feats.width_hz[d] * C_KMS / cat.rest_hz[k]
+    width_hz = np.where(pairs.galaxy, feats.profile_width_hz[d], feats.width_hz[d])
+    width_kms = width_hz * C_KMS / cat.rest_hz[k]
     band = (float(spectrum.freq_hz[0]) * factor, float(spectrum.freq_hz[-1]) * factor)
     return np.asarray(
         log_prior(cat.prior[k])
@@ -144,11 +145,15 @@ def identify(
     per_det: list[list[tuple[float, Any, float]]] = [[] for _ in range(n_det)]
     p_none = np.ones(n_det)
     if pairs.det.size:
-        spread = spreads(pairs, feats)
+        class_spread, spread = spreads(pairs, feats)
         base = _base_scores(pairs, feats, spread, catalogue, spectrum, factor)
         bg = background_density(pairs.v_kms, pairs.galaxy, vel_window_kms)
-        hyp_prior = np.log(systemic_density(pairs.v_kms, spread, bg, systemic) * _SQRT_2PI * spread)
-        none_log = math.log(NONE_PRIOR / (2.0 * vel_window_kms))
+        # a hypothesis stands for source velocities within the class spread of the pair's own
+        # velocity: its prior is the density there times that width (a poorly measured centre
+        # does not widen it, so it cannot outweigh well measured lines)
+        density = systemic_density(pairs.v_kms, spread, bg, systemic)
+        hyp_prior = np.log(density * _SQRT_2PI * class_spread)
+        none_log = log_none(fits, vel_window_kms)
         p_pair, p_none = joint_scores(pairs, base, spread, bg, hyp_prior, n_det, none_log)
         lines = pairs.cat.lines
         for i, k, p, v in zip(pairs.det.tolist(), pairs.idx.tolist(), p_pair.tolist(),

@@ -22,7 +22,7 @@ def joint_scores(
     background: np.ndarray,
     hyp_log_prior: np.ndarray,
     n_det: int,
-    none_log: float,
+    none_log: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Probabilities of every pair and of "none of these" per detection, averaged over source
     velocity hypotheses (one per pair, at its velocity and of its family).
@@ -31,7 +31,8 @@ def joint_scores(
     (each marginalised over its candidates and "none"), so an assignment that puts several lines
     at one velocity (H/He/C, OH 1665/1667, NH3 satellites, maser spikes) wins over scattered
     ones. ``base`` is each pair's log score without velocity, ``background`` its unrelated-line
-    velocity density, ``hyp_log_prior`` each hypothesis's log prior. Returns (p_pair, p_none).
+    velocity density, ``hyp_log_prior`` each hypothesis's log prior, ``none_log`` each
+    detection's log weight of "none of these". Returns (p_pair, p_none).
     """
     det, v_kms, family = pairs.det, pairs.v_kms, pairs.cat.family[pairs.idx]
     same = family[:, None] == family[None, :]
@@ -39,7 +40,7 @@ def joint_scores(
         v_kms, spread_kms, background, v_kms, same, pairs.cat.atomic[pairs.idx]
     )
     n_hyp = v_kms.size
-    rows = np.vstack([loglik, np.full((n_det, n_hyp), none_log)])
+    rows = np.vstack([loglik, np.repeat(np.asarray(none_log, dtype=float)[:, None], n_hyp, 1)])
     row_det = np.concatenate([det, np.arange(n_det)])
     order = np.argsort(row_det, kind="stable")
     rows, row_det = rows[order], row_det[order]

@@ -3,8 +3,11 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
+
+from speccat.model import LineFit
 
 #: Candidates kept per detection.
 MAX_CANDIDATES = 5
@@ -28,8 +31,10 @@ REDSHIFT_SIGMA_KMS = 60.0
 FRAME_UNKNOWN_SIGMA_KMS = 35.0
 #: Velocity density (1/(km/s)) for candidates outside every window's Gaussian core.
 FAR_DENSITY = 1e-7
-#: Prior weight and velocity density of "none of these".
+#: Prior weight of "none of these" (its velocity density is uniform over the Galactic window).
 NONE_PRIOR = 0.05
+#: "None of these" is this many times likelier for a fit the reducer flags as interference.
+RFI_NONE_FACTOR = 30.0
 #: Extragalactic HI: recession velocities up to this (radio, km/s) when the profile is wide.
 GALAXY_V_MAX_KMS = 20_000.0
 GALAXY_MIN_WIDTH_KMS = 50.0
@@ -150,3 +155,13 @@ def log_tuned(tuned: np.ndarray) -> np.ndarray:
     """The header's rest frequency (RESTFRQ) names the line the observer was after: its group
     (e.g. H171β with He171β) is likelier than a coincidental line."""
     return np.where(tuned, math.log(TUNED_FACTOR), 0.0)
+
+
+def log_none(fits: Sequence[LineFit], window_kms: float) -> np.ndarray:
+    """Log weight of "none of these" per detection: an uncatalogued line, interference or an
+    artefact, spread uniformly over the Galactic window; a fit the reducer flags as a likely
+    interference spike (``rfi-spike``) makes it RFI_NONE_FACTOR times likelier (a real maser
+    spike still wins on its own prior)."""
+    rfi = np.array(["rfi-spike" in f.flags for f in fits], dtype=bool)
+    base = math.log(NONE_PRIOR / (2.0 * window_kms))
+    return np.where(rfi, base + math.log(RFI_NONE_FACTOR), base)

@@ -290,10 +290,10 @@ def test_scores_are_probabilities_with_a_none_alternative() -> None:
     fits = [_fit(H_REST, 10.0, 25.0), _fit(_rest("He109a"), 10.0, 20.0, 6), _fit(3e9, 0, 5.0)]
     feats = features(fits, 1.0)
     pairs = candidate_pairs(feats, catalogue_arrays(CAT), 400.0, None)  # type: ignore[arg-type]
-    spread = spreads(pairs, feats)
+    _class_spread, spread = spreads(pairs, feats)
     bg = background_density(pairs.v_kms, pairs.galaxy, 400.0)
     base = np.zeros(pairs.idx.size)
-    p_pair, p_none = joint_scores(pairs, base, spread, bg, np.log(bg), 3, np.log(1e-5))
+    p_pair, p_none = joint_scores(pairs, base, spread, bg, np.log(bg), 3, np.full(3, -11.5))
     totals = np.bincount(pairs.det, weights=p_pair, minlength=3) + p_none
     assert np.allclose(totals, 1.0)
     assert p_none[2] == pytest.approx(1.0)  # no candidate at all: certainly none of these
@@ -328,3 +328,25 @@ def test_frame_correction_applied_to_velocity_and_width() -> None:
     expected = C_KMS * (1 - fit.center_hz * factor / 22_235.0e6)  # radio convention, LSRK
     assert det.v_lsr_kms == pytest.approx(expected, abs=1e-9)
     assert det.fwhm_kms == pytest.approx(fit.fwhm_hz * factor * C_KMS / 22_235.0e6, rel=1e-12)
+
+
+def test_rfi_flag_weakens_but_does_not_veto_a_maser() -> None:
+    from dataclasses import replace
+
+    fit = _fit(22_235.0e6, 12.0, 0.5, snr=300, chan_kms=0.5)
+    plain = _run([fit]).detections[0]
+    flagged = _run([replace(fit, flags=("rfi-spike",))]).detections[0]
+    assert plain.line is not None and flagged.line is not None
+    assert flagged.line.name == "H2O22" and "rfi-spike" in flagged.flags
+    assert flagged.line.score < plain.line.score
+
+
+def test_narrow_carbon_line_judged_by_its_fwhm_not_a_blended_w50() -> None:
+    """A C line on the wing of the He line: the reducer's W50 may take in the neighbour, but the
+    width plausibility uses the fitted FWHM (W50 only serves galaxy profiles)."""
+    from dataclasses import replace
+
+    c_fit = _fit(_rest("C109a"), 10.0, 5.0, snr=8)
+    c_fit = replace(c_fit, w50_hz=25.0 * _rest("C109a") / C_KMS)
+    fits = [_fit(H_REST, 10.0, 28.0, snr=60), _fit(_rest("He109a"), 10.0, 22.0, snr=8), c_fit]
+    assert _names(_run(fits)) == ["H109a", "He109a", "C109a"]
