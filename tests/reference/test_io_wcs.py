@@ -78,11 +78,12 @@ def _reference_hz(header: fits.Header, n: int) -> np.ndarray:
         return np.asarray(coord.to_value(u.Hz))
 
 
+@pytest.mark.parametrize("sign", [1.0, -1.0], ids=["as-listed", "reversed"])
 @pytest.mark.parametrize(
     "ctype,cunit,crval,cdelt,extra", AXES, ids=[f"{a[0]}-{a[1]}" for a in AXES]
 )
-def test_axis_matches_astropy_wcs(tmp_path: Path, ctype, cunit, crval, cdelt, extra) -> None:
-    header = _header(ctype, cunit, crval, cdelt, extra)
+def test_axis_matches_astropy_wcs(tmp_path: Path, ctype, cunit, crval, cdelt, extra, sign) -> None:
+    header = _header(ctype, cunit, crval, sign * cdelt, extra)
     data = np.linspace(0.0, 1.0, N)
     path = tmp_path / "axis.fits"
     fits.PrimaryHDU(data=data, header=header).writeto(path)
