@@ -63,11 +63,11 @@ class Filters:
         out: dict[str, Any] = {}
         for key in ("source", "species"):
             if key in v:
-                out[key] = _text(str(v[key]), f"--{key}")
+                out[key] = check_text(str(v[key]), f"--{key}")
         if "line" in v:
-            out["line"] = normalise_line(_text(str(v["line"]), "--line"))
+            out["line"] = normalise_line(check_text(str(v["line"]), "--line"))
         if "night" in v:
-            out["night"] = _text(str(v["night"]), "--night")
+            out["night"] = check_text(str(v["night"]), "--night")
         out.update(_ranges(v))
         if "snr" in v:
             out["snr_min"] = _number(str(v["snr"]), "--snr")
@@ -116,7 +116,8 @@ def _show(value: object) -> str:
     return repr(str(value)[:40])
 
 
-def _text(value: str, what: str) -> str:
+def check_text(value: str, what: str) -> str:
+    """A stripped, non-empty, printable text value of at most MAX_TEXT characters."""
     text = value.strip()
     if len(text) > MAX_TEXT:
         raise FilterError(f"{what}: longer than {MAX_TEXT} characters")

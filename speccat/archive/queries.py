@@ -13,7 +13,7 @@ import json
 from collections.abc import Iterator
 from typing import Any
 
-from sqlalchemy import ColumnElement, Select, func, select
+from sqlalchemy import ColumnElement, Select, and_, func, or_, select
 from sqlalchemy.engine import Engine
 
 from speccat.archive.blobs import decode_data, decode_freq
@@ -22,6 +22,7 @@ from speccat.archive.records import (
     JOINED_COLUMNS,
     RECORDS_BY_ID,
     SQL_COLUMNS,
+    STRING_COLUMNS,
     StoredSpectrum,
     record_select,
     to_record,
@@ -30,6 +31,9 @@ from speccat.archive.schema import candidates, detections, files, spectra, spect
 from speccat.errors import ArchiveError, FilterError
 from speccat.model import BaselineModel, Kind, LineFit
 
+_JOINED = detections.join(spectra, spectra.c.id == detections.c.spectrum_id).join(
+    files, files.c.id == spectra.c.file_id
+)
 DISTINCT_COLUMNS = ("source", "species", "line", "night", "kind", "stokes")
 MAX_LIMIT = 100_000
 
@@ -50,12 +54,18 @@ class QueryMixin:
                 f"--sort: unknown column {sort[:40]!r}; use one of the exported columns"
             )
         out = []
-        for col in (SQL_COLUMNS[sort], detections.c.id):
+        for col in (self._sort_column(sort), detections.c.id):
             term = col.desc() if descending else col.asc()
             if self.dialect != "sqlite" and col is not detections.c.id:
                 term = term.nulls_last() if descending else term.nulls_first()
             out.append(term)
         return out
+
+    def _sort_column(self, sort: str) -> ColumnElement[Any]:
+        col = SQL_COLUMNS[sort]
+        if self.dialect != "sqlite" and sort in STRING_COLUMNS and sort != "obs_time":
+            col = col.collate("C")  # byte order, as SQLite sorts: same pages on both engines
+        return col
 
     def count(self, filters: Filters | None = None) -> int:
         """Number of detections matching ``filters``."""
@@ -66,12 +76,27 @@ class QueryMixin:
     def _id_select(self, filters: Filters | None, sort: str, descending: bool) -> Select[Any]:
         stmt = select(detections.c.id).where(*self._where(filters))
         if sort in JOINED_COLUMNS:
-            stmt = stmt.select_from(
-                detections.join(spectra, spectra.c.id == detections.c.spectrum_id).join(
-                    files, files.c.id == spectra.c.file_id
-                )
-            )
+            stmt = stmt.select_from(_JOINED)
         return stmt.order_by(*self._order(sort, descending))
+
+    def _after(self, conn: Any, sort: str, descending: bool, after_id: int) -> ColumnElement[bool]:
+        """Keyset condition: rows strictly after detection ``after_id`` in (sort, id) order,
+        NULLs counting as the smallest values."""
+        col, ident = self._sort_column(sort), detections.c.id
+        lookup = select(SQL_COLUMNS[sort]).where(ident == after_id)
+        if sort in JOINED_COLUMNS:
+            lookup = lookup.select_from(_JOINED)
+        found = conn.execute(lookup).first()
+        if found is None:
+            raise FilterError(f"page: no detection {after_id} to continue after")
+        value = found[0]
+        if value is None:
+            if descending:
+                return and_(col.is_(None), ident < after_id)
+            return or_(col.is_not(None), and_(col.is_(None), ident > after_id))
+        if descending:
+            return or_(col < value, and_(col == value, ident < after_id), col.is_(None))
+        return or_(col > value, and_(col == value, ident > after_id))
 
     def page(
         self,
@@ -80,12 +105,18 @@ class QueryMixin:
         descending: bool = True,
         offset: int = 0,
         limit: int = 200,
+        after: int | None = None,
     ) -> list[dict[str, Any]]:
-        """One page of records (EXPORT_COLUMNS + spectrum_id, ra_deg, dec_deg, continuum)."""
+        """One page of records (EXPORT_COLUMNS + spectrum_id, ra_deg, dec_deg, continuum).
+
+        ``offset`` skips rows (an index scan: for jumps); ``after`` = the ``detection_id`` of
+        the last record of the previous page continues from there (keyset: for scrolling)."""
         if offset < 0 or not 0 < limit <= MAX_LIMIT:
             raise FilterError(f"page: offset must be >= 0 and limit in 1..{MAX_LIMIT}")
         ids_stmt = self._id_select(filters, sort, descending).limit(limit).offset(offset)
         with self._reader.connect() as conn:
+            if after is not None:
+                ids_stmt = ids_stmt.where(self._after(conn, sort, descending, int(after)))
             ids = [int(i) for i in conn.execute(ids_stmt).scalars()]
             if not ids:
                 return []

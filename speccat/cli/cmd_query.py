@@ -15,15 +15,12 @@ ORDER = 30
 TABLE_COLUMNS = (
     "detection_id",
     "source",
-    "night",
     "line",
     "v_lsr_kms",
-    "obs_freq_mhz",
-    "peak",
     "fwhm_kms",
+    "peak",
     "snr",
     "kind",
-    "flags",
 )
 
 

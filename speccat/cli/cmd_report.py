@@ -38,9 +38,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from speccat.archive import Archive
-    from speccat.archive.filters import _text
+    from speccat.archive.filters import check_text
 
-    night = None if args.night is None else _text(args.night, "--night")
+    night = None if args.night is None else check_text(args.night, "--night")
     settings = load_settings({"archive": args.archive})
     with Archive.open(settings.archive, readonly=True) as archive:
         report = archive.night_report(night)
