@@ -61,7 +61,12 @@ def _base_scores(
                     cat.width_max_kms[k])  # fmt: skip
     width_hz = np.where(pairs.galaxy, feats.profile_width_hz[d], feats.width_hz[d])
     width_kms = width_hz * C_KMS / cat.rest_hz[k]
-    band = (float(spectrum.freq_hz[0]) * factor, float(spectrum.freq_hz[-1]) * factor)
+    freq = spectrum.freq_hz
+    band = (
+        (float(np.nanmin(freq)) * factor, float(np.nanmax(freq)) * factor)
+        if freq.size
+        else (math.nan, math.nan)
+    )  # no band: no companion can be missed
     return np.asarray(
         log_prior(cat.prior[k])
         + log_width_plausibility(width_kms, wmin, wmax, feats.resolved[d], feats.width_rel_err[d])

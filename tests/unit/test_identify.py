@@ -350,3 +350,14 @@ def test_narrow_carbon_line_judged_by_its_fwhm_not_a_blended_w50() -> None:
     c_fit = replace(c_fit, w50_hz=25.0 * _rest("C109a") / C_KMS)
     fits = [_fit(H_REST, 10.0, 28.0, snr=60), _fit(_rest("He109a"), 10.0, 22.0, snr=8), c_fit]
     assert _names(_run(fits)) == ["H109a", "He109a", "C109a"]
+
+
+def test_unusable_fits_stay_unidentified() -> None:
+    """A fit with a NaN or non-positive centre has no candidates; nothing raises."""
+    from dataclasses import replace
+
+    good = _fit(H_REST, 0.0, 25.0)
+    fits = [replace(good, center_hz=float("nan")), replace(good, center_hz=-1.0), good]
+    res = _run(fits, _spectrum(4.9e9, 5.1e9))
+    assert _names(res) == [None, None, "H109a"]
+    assert res.detections[0].candidates == () and res.detections[1].candidates == ()
