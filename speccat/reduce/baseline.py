@@ -51,8 +51,8 @@ def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.n
 
 def intervals_mask(n: int, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     """Boolean mask of the union of channel intervals [lo, hi) (clipped to the band)."""
-    lo = np.clip(np.asarray(lo, dtype=np.int64), 0, n)
-    hi = np.clip(np.asarray(hi, dtype=np.int64), 0, n)
+    lo = np.minimum(np.maximum(np.asarray(lo, dtype=np.int64), 0), n)
+    hi = np.minimum(np.maximum(np.asarray(hi, dtype=np.int64), 0), n)
     acc = np.bincount(lo, minlength=n + 1) - np.bincount(hi, minlength=n + 1)
     return np.asarray(np.cumsum(acc[:n]) > 0)
 
@@ -174,7 +174,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
     denom = lo - 2 * mid + hi
     shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
-    return float(nfft / (best + np.clip(shift, -0.5, 0.5)))
+    return float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
 
 
 def refine_period(

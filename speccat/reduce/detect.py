@@ -103,9 +103,9 @@ def filter_bank(
         m = plan.nfft // d
         n_out = -(-n // d)
         filtered = scipy.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)[:, :n_out]
-        scale = d * rms * np.sqrt(norms * corr[idx])
+        filtered /= (d * rms * np.sqrt(norms * corr[idx]))[:, None]
         for row, j in enumerate(idx):
-            out[j] = (filtered[row] / scale[row], d)
+            out[j] = (filtered[row], d)
     return out
 
 

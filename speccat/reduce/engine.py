@@ -38,9 +38,9 @@ class Group:
 
 def reach_sigma(params: np.ndarray) -> np.ndarray:
     """A Gaussian-equivalent extent (channels) per component; Voigt wings count double."""
-    sig = np.exp(np.clip(params[:, 2], -30, 30))
+    sig = np.exp(np.minimum(np.maximum(params[:, 2], -30), 30))
     if params.shape[1] == 4:
-        sig = sig + 2.0 * np.exp(np.clip(params[:, 3], -30, 30))
+        sig = sig + 2.0 * np.exp(np.minimum(np.maximum(params[:, 3], -30), 30))
     return np.asarray(sig)
 
 
@@ -57,7 +57,7 @@ def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
     reach = np.maximum.accumulate(hi)
     breaks = np.flatnonzero(lo[1:] >= reach[:-1]) + 1
     out: list[np.ndarray] = []
-    strength = np.abs(params[:, 0]) * np.exp(np.clip(params[:, 2], -30, 30))
+    strength = np.abs(params[:, 0]) * np.exp(np.minimum(np.maximum(params[:, 2], -30), 30))
     for chunk in np.split(order, breaks):
         if chunk.size > max_components:  # keep the strongest; the rest is dropped
             chunk = np.sort(chunk[np.argsort(-strength[chunk])[:max_components]])
@@ -207,7 +207,10 @@ def detect_and_fit(
         groups = fit_groups(resid, valid, params, noise, settings, profile)
         params = stack(groups, params.shape[1])
     for _ in range(settings.max_rounds):
-        left = np.where(valid, resid - model(chan, params, profile), 0.0)
+        left = np.where(valid, resid, 0.0)
+        for p in params:  # subtract each component over its own window only
+            lo, hi = window(p[None, :], n)
+            left[lo:hi] -= np.where(valid[lo:hi], model(chan[lo:hi], p[None, :], profile), 0.0)
         bank = filter_bank(left, sigmas, noise.rms, noise.rho)
         room = settings.max_lines - params.shape[0]
         seeds = find_seeds(bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, [], room)

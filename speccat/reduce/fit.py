@@ -52,7 +52,7 @@ class GroupFit:
 
 
 def _gauss_parts(x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    amp, cen, s = p[:, 0:1], p[:, 1:2], np.exp(np.clip(p[:, 2:3], -12.0, 30.0))
+    amp, cen, s = p[:, 0:1], p[:, 1:2], np.exp(np.minimum(np.maximum(p[:, 2:3], -12.0), 30.0))
     t = (x[None, :] - cen) / s
     g = np.exp(-0.5 * t * t)
     return g, amp * g, t
@@ -61,8 +61,8 @@ def _gauss_parts(x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, np.ndarray, 
 def _voigt_parts(x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     cen, sig, gam = (
         p[:, 1:2],
-        np.exp(np.clip(p[:, 2:3], -12, 30)),
-        np.exp(np.clip(p[:, 3:4], -30, 30)),
+        np.exp(np.minimum(np.maximum(p[:, 2:3], -12), 30)),
+        np.exp(np.minimum(np.maximum(p[:, 3:4], -30), 30)),
     )
     z = ((x[None, :] - cen) + 1j * gam) / (sig * np.sqrt(2.0))
     w = scipy.special.wofz(z)
@@ -76,7 +76,7 @@ def model(x: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
     if profile == "gaussian":
         return np.asarray(_gauss_parts(x, params)[1].sum(axis=0))
     _, w = _voigt_parts(x, params)
-    sig = np.exp(np.clip(params[:, 2:3], -12, 30))
+    sig = np.exp(np.minimum(np.maximum(params[:, 2:3], -12), 30))
     return np.asarray((params[:, 0:1] * w.real / (sig * SQRT2PI)).sum(axis=0))
 
 
@@ -85,12 +85,15 @@ def jacobian(x: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
     k = params.shape[0]
     if profile == "gaussian":
         g, ag, t = _gauss_parts(x, params)
-        s = np.exp(np.clip(params[:, 2:3], -12.0, 30.0))
+        s = np.exp(np.minimum(np.maximum(params[:, 2:3], -12.0), 30.0))
         cols = np.stack((g, ag * t / s, ag * t * t), axis=1)  # (k, 3, m)
         return cols.reshape(3 * k, -1).T
     z, w = _voigt_parts(x, params)
     area = params[:, 0:1]
-    sig, gam = np.exp(np.clip(params[:, 2:3], -12, 30)), np.exp(np.clip(params[:, 3:4], -30, 30))
+    sig, gam = (
+        np.exp(np.minimum(np.maximum(params[:, 2:3], -12), 30)),
+        np.exp(np.minimum(np.maximum(params[:, 3:4], -30), 30)),
+    )
     norm = 1.0 / (sig * SQRT2PI)
     dw = -2.0 * z * w + 2j / np.sqrt(np.pi)
     v = w.real * norm
