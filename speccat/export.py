@@ -18,6 +18,7 @@ import io
 import json
 import math
 import os
+import re
 import tempfile
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
@@ -117,6 +118,14 @@ def text(value: Any) -> str:
     if isinstance(value, float):
         return repr(value)
     return str(value)
+
+
+_XML_ILLEGAL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+
+
+def _xml_text(value: Any) -> str:
+    """Cell text for XML: escaped, with characters XML 1.0 forbids replaced by U+FFFD."""
+    return escape(_XML_ILLEGAL.sub("\ufffd", text(value)))
 
 
 def _ecsv_cell(value: Any) -> str:
@@ -234,7 +243,7 @@ def write_votable(
     names = [c.name for c in columns]
     n = 0
     for rec in records:
-        cells = "".join(f"<TD>{escape(text(rec.get(name)))}</TD>" for name in names)
+        cells = "".join(f"<TD>{_xml_text(rec.get(name))}</TD>" for name in names)
         out.write(f"     <TR>{cells}</TR>\n")
         n += 1
     out.write(_VOTABLE_FOOTER)

@@ -211,3 +211,31 @@ def test_with_derived_adds_the_physics_columns(filled_archive: Any, tmp_path: Pa
             if value is not None and not math.isfinite(value):
                 value = None
             assert row[name] == value
+
+
+def test_votable_survives_markup_and_control_characters(tmp_path: Path) -> None:
+    import dataclasses
+
+    from archive_fixtures import make_file
+
+    from speccat.model import FileResult
+
+    good = make_file(3, n_spectra=1)
+    sres = good.spectra[0]
+    odd = dataclasses.replace(sres.spectrum, source='Odd\x01Name <&> "q"')
+    result = FileResult(
+        good.path, good.size_bytes, good.sha256, (dataclasses.replace(sres, spectrum=odd),)
+    )
+    with Archive.open(str(tmp_path / "o.sqlite"), create=True) as archive:
+        archive.store_file(archive.begin_run({}), result, "n")
+        export(archive, Filters(), tmp_path / "o.vot")
+        export(archive, Filters(), tmp_path / "o.ecsv")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        table = (
+            parse_votable(str(tmp_path / "o.vot"), verify="exception").get_first_table().to_table()
+        )
+    assert set(table["source"]) == {'Odd\ufffdName <&> "q"'}  # XML 1.0 cannot hold U+0001
+    assert set(Table.read(tmp_path / "o.ecsv", format="ascii.ecsv")["source"]) == {
+        'Odd\x01Name <&> "q"'
+    }
