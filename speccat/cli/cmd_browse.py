@@ -20,8 +20,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def interactive() -> bool:
+    """True when both standard input and output are a terminal."""
+    return sys.stdout.isatty() and sys.stdin.isatty()
+
+
 def run(args: argparse.Namespace) -> int:
-    if not (sys.stdout.isatty() and sys.stdin.isatty()):
+    if not interactive():
         raise SpeccatError(
             "browse needs an interactive terminal (stdin and stdout are not both a terminal); "
             "use `speccat query` or `speccat export` in scripts"

@@ -27,8 +27,14 @@ class SpeccatBrowser(App[None]):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("question_mark,f1", "keys", "Keys", id="app.keys"),
-        Binding("q", "quit", "Quit", id="app.quit"),
+        Binding(
+            "question_mark,f1",
+            "keys",
+            "Keys",
+            id="app.keys",
+            tooltip="list every key (this screen)",
+        ),
+        Binding("q", "quit", "Quit", id="app.quit", tooltip="leave speccat browse"),
     ]
 
     def __init__(self, archive: Any) -> None:

@@ -44,11 +44,35 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
     AUTO_FOCUS = "#detections"
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("slash", "edit_filters", "Filters", id="browse.filters"),
+        Binding(
+            "slash",
+            "edit_filters",
+            "Filters",
+            id="browse.filters",
+            tooltip="go to the filter form; filters apply as you type",
+        ),
         Binding("escape", "to_table", "Back to the table", show=False, id="browse.to_table"),
-        Binding("enter", "inspect", "Inspect", id="browse.inspect"),
-        Binding("x", "export(True)", "Export marked", id="browse.export_marked"),
-        Binding("X", "export(False)", "Export all", id="browse.export_all"),
+        Binding(
+            "enter",
+            "inspect",
+            "Inspect",
+            id="browse.inspect",
+            tooltip="open the highlighted detection: spectrum, fit, candidates, physics",
+        ),
+        Binding(
+            "x",
+            "export(True)",
+            "Export marked",
+            id="browse.export_marked",
+            tooltip="write the marked rows to a file (asks for its name)",
+        ),
+        Binding(
+            "X",
+            "export(False)",
+            "Export all",
+            id="browse.export_all",
+            tooltip="write every detection matching the filters to a file",
+        ),
         Binding("ctrl+r", "clear_filters", "Clear all filters", show=False, id="browse.clear"),
     ]
 

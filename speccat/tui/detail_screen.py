@@ -33,8 +33,20 @@ class DetailScreen(ReportsWorkerFailures, Screen[None]):
         Binding("escape,backspace", "back", "Back", id="detail.back"),
         Binding("down,j,n", "step(1)", "Next", key_display="↓", id="detail.next"),
         Binding("up,k,p", "step(-1)", "Previous", key_display="↑", id="detail.previous"),
-        Binding("a", "toggle_axis", "Axis v/f", id="detail.axis"),
-        Binding("z", "toggle_zoom", "Zoom", id="detail.zoom"),
+        Binding(
+            "a",
+            "toggle_axis",
+            "Axis v/f",
+            id="detail.axis",
+            tooltip="x axis: LSRK radio velocity of the identified line, or frequency",
+        ),
+        Binding(
+            "z",
+            "toggle_zoom",
+            "Zoom",
+            id="detail.zoom",
+            tooltip="show the line (centre ±4 FWHM) or the whole band",
+        ),
         Binding("space", "mark", "Mark", id="detail.mark"),
     ]
 
@@ -128,7 +140,7 @@ class DetailScreen(ReportsWorkerFailures, Screen[None]):
     def _redraw(self) -> None:
         if not self._ready or self.detail is None:
             return
-        data, legend = plot_for(self.detail, self.velocity_axis, self.zoomed)
+        data, legend = plot_for(self.detail, self.velocity_axis, self.zoomed, self.app.no_color)
         self.query_one(SpectrumPlot).data = data
         self.query_one("#plot-legend", Label).update(legend)
 
@@ -170,7 +182,9 @@ def _velocity(freq_hz: np.ndarray | float, detail: services.Detail) -> Any:
     return velocity_from_freq(np.asarray(freq_hz) * detail.lsrk_factor, detail.rest_hz, "radio")
 
 
-def plot_for(detail: services.Detail, velocity_axis: bool, zoomed: bool) -> tuple[PlotData, str]:
+def plot_for(
+    detail: services.Detail, velocity_axis: bool, zoomed: bool, plain: bool = False
+) -> tuple[PlotData, str]:
     """The plot data and its one-line legend for the chosen axis and zoom."""
     use_v = velocity_axis and detail.rest_hz is not None
     chan = services.stored_chan_width_hz(detail.freq_hz)
@@ -201,8 +215,9 @@ def plot_for(detail: services.Detail, velocity_axis: bool, zoomed: bool) -> tupl
         y_unit=str(detail.row.get("intensity_unit") or ""),
     )
     legend = (
-        f" [b]a[/b] {axis}  [b]z[/b] {view}  [$foreground]⣿data[/] [b $warning]⣿fit[/]"
-        " [$secondary]⣿resid[/] [$accent]⡇catalogue[/]"
+        f" [b]a[/b] {axis}  [b]z[/b] {view}  [$foreground]⣿data[/] "
+        + ("⡇⡇fit (dashed)" if plain else "[b $warning]⣿fit[/]")
+        + " [$secondary]⣿resid[/] [$accent]⠅catalogue[/]"
     )
     return data, legend
 

@@ -5,7 +5,8 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from rich.text import Text
+from textual.content import Content
+from textual.markup import escape
 
 from speccat.tui.services import Detail
 
@@ -25,18 +26,16 @@ def value_pm(value: Any, err: Any, unit: str = "") -> str:
     return f"{value:.{decimals}f} ± {err:.{decimals}f}{tail}"
 
 
-def _panel(title: str, rows: list[tuple[str, str]], notes: list[str] | None = None) -> Text:
-    text = Text(title + "\n", style="bold underline")
+def _panel(title: str, rows: list[tuple[str, str]], notes: list[str] | None = None) -> Content:
+    """A heading, aligned key/value rows and italic notes, as Textual content (no colours)."""
     width = max((len(k) for k, _ in rows), default=0)
-    for key, value in rows:
-        text.append(f"{key.ljust(width)}  ", style="bold")
-        text.append(value + "\n")
-    for note in notes or []:
-        text.append(note + "\n", style="italic")
-    return text
+    lines = [f"[b u]{escape(title)}[/]"]
+    lines += [f"[b]{escape(key.ljust(width))}[/]  {escape(value)}" for key, value in rows]
+    lines += [f"[i]{escape(note)}[/]" for note in notes or []]
+    return Content.from_markup("\n".join(lines))
 
 
-def fit_text(d: Detail) -> Text:
+def fit_text(d: Detail) -> Content:
     """The fitted values with their 1-sigma errors, in the exported units."""
     r = d.row
     unit = str(r.get("intensity_unit") or "")
@@ -55,7 +54,7 @@ def fit_text(d: Detail) -> Text:
     return _panel(title, rows)
 
 
-def candidates_text(d: Detail) -> Text:
+def candidates_text(d: Detail) -> Content:
     """The ranked identification candidates, best first; the chosen one is starred."""
     chosen = d.row.get("line")
     rows: list[tuple[str, str]] = []
@@ -78,7 +77,7 @@ def candidates_text(d: Detail) -> Text:
     return _panel("Candidates, best first", rows, notes)
 
 
-def physics_text(d: Detail) -> Text:
+def physics_text(d: Detail) -> Content:
     """Quality flags of the line and the spectrum, and the derived physical quantities."""
     line_flags = [f for f in str(d.row.get("flags") or "").split(";") if f]
     rows = [

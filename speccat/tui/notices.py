@@ -13,9 +13,10 @@ from speccat.errors import SpeccatError
 
 def failure_text(error: BaseException | None) -> str:
     """One line for the user: SpeccatErrors speak for themselves, others get their type."""
-    if isinstance(error, SpeccatError):
-        return str(error)
-    return f"{type(error).__name__}: {error}"
+    text = str(error) if isinstance(error, SpeccatError) else f"{type(error).__name__}: {error}"
+    lines = text.strip().splitlines() or [""]
+    first = lines[0]
+    return first if len(first) <= 200 else first[:199] + "…"
 
 
 class ReportsWorkerFailures:

@@ -8,7 +8,7 @@ segments per screen row, and the widget maps each role to a theme style. Roles: 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -16,6 +16,7 @@ from speccat.tui.braille import combine, curve_codes, nice_ticks, padded_range, 
 
 Segment = tuple[str, str]
 MARGIN = 9  # characters for y tick labels
+DASH_MASK = 0x01 | 0x02 | 0x04 | 0x40  # keep the left dot column of each cell: a dashed curve
 
 
 @dataclass(frozen=True, eq=False)
@@ -34,7 +35,7 @@ class PlotData:
     x_range: tuple[float, float] | None = None
     x_unit: str = ""
     y_unit: str = ""
-    highlight: tuple[float, ...] = field(default=())
+    model_dashed: bool = False
 
 
 def _fmt_tick(value: float, step: float) -> str:
@@ -110,7 +111,10 @@ def compose_plot(data: PlotData, width: int, height: int) -> list[list[Segment]]
     layers.append(curve_codes(x, y, x_range, y_range, main_rows, plot_w))
     roles.append("data")
     if data.model is not None:
-        layers.append(curve_codes(x, data.model, x_range, y_range, main_rows, plot_w))
+        model_codes = curve_codes(x, data.model, x_range, y_range, main_rows, plot_w)
+        if data.model_dashed:
+            model_codes &= DASH_MASK
+        layers.append(model_codes)
         roles.append("model")
 
     x_span = x_range[1] - x_range[0]

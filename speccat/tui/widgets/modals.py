@@ -6,12 +6,12 @@ from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import ClassVar
 
-from rich.table import Table
-from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.content import Content
+from textual.markup import escape
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Label, Static
 
@@ -123,20 +123,27 @@ class KeyHelp(ModalScreen[None]):
         self.dismiss(None)
 
 
-def help_table(sections: Sequence[tuple[str, Iterable[BindingType]]]) -> Table:
-    """A rich table of (key, what it does) rows grouped by section, from Binding objects."""
-    table = Table(show_header=False, box=None, padding=(0, 1), expand=True)
-    table.add_column("key", no_wrap=True, style="bold")
-    table.add_column("does", ratio=1)
+def help_table(sections: Sequence[tuple[str, Iterable[BindingType]]]) -> Content:
+    """Every described binding as aligned (keys, what it does) lines, grouped by section."""
+    blocks: list[tuple[str, list[tuple[str, str]]]] = []
     for title, bindings in sections:
-        rows = [b for b in bindings if isinstance(b, Binding) and b.description]
-        if not rows:
-            continue
-        table.add_row(Text(title, style="underline"), "")
-        for b in rows:
-            keys = ", ".join(_key_name(k) for k in b.key.split(","))
-            table.add_row(keys, b.description)
-    return table
+        rows = [
+            (
+                ", ".join(_key_name(k) for k in b.key.split(",")),
+                f"{b.description}: {b.tooltip}" if b.tooltip else b.description,
+            )
+            for b in bindings
+            if isinstance(b, Binding) and b.description
+        ]
+        if rows:
+            blocks.append((title, rows))
+    width = max((len(k) for _, rows in blocks for k, _ in rows), default=0)
+    lines: list[str] = []
+    for title, rows in blocks:
+        lines.append(f"[b u]{escape(title)}[/]")
+        lines += [f"  [b]{escape(k.ljust(width))}[/]  {escape(d)}" for k, d in rows]
+        lines.append("")
+    return Content.from_markup("\n".join(lines).rstrip())
 
 
 _KEY_NAMES = {

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import ClassVar
 
 from rich.segment import Segment
@@ -65,15 +66,18 @@ class SpectrumPlot(Widget):
         if self.data is None or width <= 0 or height <= 0:
             self._rows = [Strip([Segment(self.message, styles["label"])])]
             return
-        rows = compose_plot(self.data, width, height)
+        data = self.data
+        if self.app.no_color and data.model is not None:
+            data = replace(data, model_dashed=True)
+        rows = compose_plot(data, width, height)
         self._rows = [Strip([Segment(text, styles[role]) for text, role in row]) for row in rows]
 
     def render_line(self, y: int) -> Strip:
         self._layout()
         width = self.size.width
         if y < len(self._rows):
-            return self._rows[y].crop(0, width).extend_cell_length(width)
-        return Strip.blank(width)
+            return self._rows[y].crop(0, width).extend_cell_length(width, self.rich_style)
+        return Strip.blank(width, self.rich_style)
 
     def plain_lines(self) -> list[str]:
         """The drawn rows as text (for tests and screenshots)."""

@@ -50,7 +50,13 @@ class DetectionTable(ReportsWorkerFailures, ScrollView, can_focus=True):
         Binding("home,g", "jump(0)", "First row", show=False, id="table.first"),
         Binding("end,G", "jump(-1)", "Last row", show=False, id="table.last"),
         Binding("space", "toggle_mark", "Mark", id="table.mark", tooltip="mark or unmark the row"),
-        Binding("s", "next_sort(1)", "Sort", id="table.sort_next"),
+        Binding(
+            "s",
+            "next_sort(1)",
+            "Sort",
+            id="table.sort_next",
+            tooltip="order by the next column (or click a heading)",
+        ),
         Binding(
             "S", "next_sort(-1)", "Sort by the previous column", show=False, id="table.sort_prev"
         ),
@@ -261,7 +267,7 @@ class DetectionTable(ReportsWorkerFailures, ScrollView, can_focus=True):
         width = self.size.width
         scroll_x = int(self.scroll_x)
         strip = self._header() if y == 0 else self._data_line(int(self.scroll_y) + y - 1)
-        return strip.crop(scroll_x, scroll_x + width).extend_cell_length(width)
+        return strip.crop(scroll_x, scroll_x + width).extend_cell_length(width, self.rich_style)
 
     def _data_line(self, index: int) -> Strip:
         base = self.rich_style
