@@ -1,0 +1,239 @@
+"""Robustness, killed ingests (issue 11): SIGKILL at random moments, then check and re-run.
+
+After every kill the SQLite archive must pass ``PRAGMA integrity_check``, every stored file must
+hold exactly what a clean ingest stores for it (spectra, detections, candidates: never half a
+file), and a final run must complete with no duplicates and the same content as a clean ingest.
+
+Most trials kill a forked child that runs ``speccat.pipeline.ingest`` (the parent has imported
+everything, so the child writes at once and a random moment really falls among the writes);
+two trials kill the real ``speccat ingest --jobs 2`` with its worker processes, once the first
+file is in.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import multiprocessing as mp
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hostile_inputs import bases
+
+SEED = 20261202
+FORK_TRIALS = 10
+CLI_TRIALS = 2
+
+#: per file: spectra, detections, candidates, and a digest of every stored value that a file
+#: determines (axis and data blobs, fit values, identifications); ids, runs, nights left out.
+Signature = tuple[int, int, int, str]
+
+
+def _tables(db: sqlite3.Connection) -> set[str]:
+    return {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+
+
+def _columns(db: sqlite3.Connection, table: str, drop: set[str]) -> list[str]:
+    cols = [r[1] for r in db.execute(f'PRAGMA table_info("{table}")')]
+    return [c for c in cols if c not in drop]
+
+
+def signatures(archive: Path) -> dict[str, Signature]:
+    """sha256 -> Signature for every file in the archive."""
+    db = sqlite3.connect(archive)
+    try:
+        skip = {"id", "file_id", "spectrum_id", "detection_id", "run_id", "night", "path"}
+        s_cols = _columns(db, "spectra", skip)
+        d_cols = _columns(db, "detections", skip)
+        c_cols = _columns(db, "candidates", skip)
+        has_data = "spectrum_data" in _tables(db)
+        out: dict[str, Signature] = {}
+        for file_id, sha in db.execute("SELECT id, sha256 FROM files").fetchall():
+            h = hashlib.sha256()
+            spec = db.execute(
+                f"SELECT id, {', '.join(s_cols)} FROM spectra WHERE file_id = ? "
+                'ORDER BY hdu, "row", id',
+                (file_id,),
+            ).fetchall()
+            n_det = n_cand = 0
+            for sid, *values in spec:
+                h.update(repr(values).encode())
+                if has_data:
+                    h.update(
+                        repr(
+                            db.execute(
+                                "SELECT * FROM spectrum_data WHERE spectrum_id = ?", (sid,)
+                            ).fetchall()[0][1:]
+                        ).encode()
+                    )
+                dets = db.execute(
+                    f"SELECT id, {', '.join(d_cols)} FROM detections WHERE spectrum_id = ? "
+                    "ORDER BY center_hz, id",
+                    (sid,),
+                ).fetchall()
+                for did, *dvalues in dets:
+                    n_det += 1
+                    h.update(repr(dvalues).encode())
+                    cands = db.execute(
+                        f"SELECT {', '.join(c_cols)} FROM candidates WHERE detection_id = ? "
+                        'ORDER BY "rank"',
+                        (did,),
+                    ).fetchall()
+                    n_cand += len(cands)
+                    h.update(repr(cands).encode())
+            out[sha] = (len(spec), n_det, n_cand, h.hexdigest())
+        return out
+    finally:
+        db.close()
+
+
+def integrity(archive: Path) -> str:
+    db = sqlite3.connect(archive)
+    try:
+        return str(db.execute("PRAGMA integrity_check").fetchone()[0])
+    finally:
+        db.close()
+
+
+def _run_ingest(folder: str, archive: str) -> None:
+    from speccat.archive import Archive
+    from speccat.config import Settings
+    from speccat.pipeline import ingest
+
+    with Archive.open(archive, create=True) as arch:
+        ingest([folder], arch, Settings(), night="kill-test", jobs=1)
+    os._exit(0)
+
+
+def _warm_up() -> None:
+    """Import and build everything the ingest needs, so that a forked child writes at once."""
+    from speccat.archive import Archive  # noqa: F401
+    from speccat.catalogue import builtin
+    from speccat.identify import identify  # noqa: F401
+    from speccat.io import read  # noqa: F401
+    from speccat.reduce import measure  # noqa: F401
+
+    builtin()
+
+
+def _fork_ingest(folder: Path, archive: Path) -> mp.process.BaseProcess:
+    ctx = mp.get_context("fork")
+    proc = ctx.Process(target=_run_ingest, args=(str(folder), str(archive)))
+    proc.start()
+    return proc
+
+
+@pytest.fixture(scope="module")
+def night(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, dict[str, Signature], float]:
+    """A folder of 16 valid files, the signatures of a clean ingest, and its duration (s)."""
+    root = tmp_path_factory.mktemp("killed")
+    folder = root / "night"
+    folder.mkdir()
+    for seed in range(300, 304):
+        for name, content in bases(seed).items():
+            (folder / f"s{seed}_{name}").write_bytes(content)
+    _warm_up()
+    clean = root / "clean.sqlite"
+    t0 = time.perf_counter()
+    proc = _fork_ingest(folder, clean)
+    proc.join(300)
+    duration = time.perf_counter() - t0
+    assert proc.exitcode == 0
+    reference = signatures(clean)
+    assert len(reference) == 16
+    assert all(n_spec > 0 for n_spec, *_ in reference.values())
+    return folder, reference, duration
+
+
+def _check_after_kill(archive: Path, reference: dict[str, Signature]) -> int:
+    if not archive.exists():
+        return 0
+    assert integrity(archive) == "ok"
+    found = signatures(archive)
+    half = {sha: sig for sha, sig in found.items() if reference.get(sha) != sig}
+    assert half == {}, "a file is stored differently from a clean ingest (half stored?)"
+    return len(found)
+
+
+@pytest.mark.slow
+def test_sigkill_at_random_moments_never_half_stores_a_file(
+    tmp_path: Path, night: tuple[Path, dict[str, Signature], float]
+) -> None:
+    folder, reference, duration = night
+    rng = np.random.default_rng(SEED)
+    archive = tmp_path / "killed.sqlite"
+    stored = 0
+    killed = 0
+    for _ in range(FORK_TRIALS):
+        if stored == len(reference):  # nothing left to interrupt: start a new archive
+            for p in tmp_path.glob("killed.sqlite*"):
+                p.unlink()
+            stored = 0
+        remaining = duration * (len(reference) - stored) / len(reference)
+        proc = _fork_ingest(folder, archive)
+        proc.join(float(rng.uniform(0.0, remaining)))
+        if proc.is_alive():
+            os.kill(proc.pid, signal.SIGKILL)  # type: ignore[arg-type]
+            killed += 1
+        proc.join(60)
+        stored = _check_after_kill(archive, reference)
+    assert killed >= FORK_TRIALS // 2, "most trials must really be killed mid-run"
+    proc = _fork_ingest(folder, archive)
+    proc.join(300)
+    assert proc.exitcode == 0
+    assert integrity(archive) == "ok"
+    assert signatures(archive) == reference  # no duplicates, nothing missing, same content
+    with sqlite3.connect(archive) as db:
+        assert db.execute("SELECT count(*) FROM files").fetchone()[0] == len(reference)
+
+
+@pytest.mark.slow
+def test_sigkill_of_the_real_cli_with_workers(
+    tmp_path: Path, night: tuple[Path, dict[str, Signature], float]
+) -> None:
+    folder, reference, _ = night
+    rng = np.random.default_rng(SEED + 1)
+    archive = tmp_path / "cli.sqlite"
+    cmd = [sys.executable, "-m", "speccat", "--archive", str(archive), "ingest", str(folder)]
+    for _ in range(CLI_TRIALS):
+        before = _check_after_kill(archive, reference)
+        proc = subprocess.Popen(
+            [*cmd, "--jobs", "2", "--json"],
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            start_new_session=True,  # its own process group: the kill takes the workers too
+        )
+        deadline = time.monotonic() + 240
+        while proc.poll() is None and time.monotonic() < deadline:
+            if archive.exists() and _count_files(archive) > before:
+                break
+            time.sleep(0.05)
+        time.sleep(float(rng.uniform(0.0, 0.5)))
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait(60)
+        _check_after_kill(archive, reference)
+    done = subprocess.run([*cmd, "--jobs", "2"], capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr[-1500:]
+    assert integrity(archive) == "ok"
+    got = signatures(archive)
+    assert set(got) == set(reference)
+    # counts must match exactly; values too, except what depends on the night label
+    assert {k: v[:3] for k, v in got.items()} == {k: v[:3] for k, v in reference.items()}
+
+
+def _count_files(archive: Path) -> int:
+    try:
+        db = sqlite3.connect(f"file:{archive}?mode=ro", uri=True, timeout=5)
+        try:
+            return int(db.execute("SELECT count(*) FROM files").fetchone()[0])
+        finally:
+            db.close()
+    except sqlite3.Error:
+        return 0
