@@ -56,7 +56,20 @@ def assemble(
             isolated = data[lo:hi] - (model(xs, everything, profile) - own)
             flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)
             out.append(
-                _linefit(comp, freq, dfdc, isolated, (lo, hi), noise, s, chi2, index, flags, widths)
+                _linefit(
+                    comp,
+                    freq,
+                    dfdc,
+                    isolated,
+                    (lo, hi),
+                    noise,
+                    s,
+                    chi2,
+                    group.fit.dof,
+                    index,
+                    flags,
+                    widths,
+                )
             )
     return sorted(out, key=lambda line: line.center_hz)
 
@@ -107,6 +120,7 @@ def _linefit(
     noise: Noise,
     s: ReduceSettings,
     chi2: float,
+    dof: int,
     blend: int,
     flags: tuple[str, ...],
     widths: list[float | None],
@@ -115,7 +129,13 @@ def _linefit(
     n = freq.size
     chan = np.arange(n, dtype=float)
     scale = float(np.interp(comp.center, chan, dfdc))
-    inflate = float(np.sqrt(correlation_factor(noise.rho, comp.sigma)[0]))
+    # errors: the covariance is scaled by the fit's residual variance (reduced chi^2) when the
+    # fit is statistically worse than the noise (chi^2_red > 1 + 3 sqrt(2/dof)), else by the
+    # far better determined line-free rms^2 (Particle Data Group scale-factor convention);
+    # then times the correlated-noise factor for weights of the line's width
+    consistent = chi2 <= 1.0 + 3.0 * np.sqrt(2.0 / dof)
+    floor = 1.0 / np.sqrt(chi2) if consistent and chi2 > 0 else 1.0
+    inflate = float(floor * np.sqrt(correlation_factor(noise.rho, comp.sigma)[0]))
     lo, hi = span
     ok = np.isfinite(seg)
     total = direct_sum(seg, dfdc[lo:hi])

@@ -152,3 +152,30 @@ def test_component_errors_propagate_to_integral(rng: np.random.Generator) -> Non
     assert comp.area == pytest.approx(np.sqrt(2 * np.pi) * fit.params[0, 0] * s, rel=1e-9)
     j = np.array([np.sqrt(2 * np.pi) * s, 0.0, np.sqrt(2 * np.pi) * fit.params[0, 0] * s])
     assert comp.area_err == pytest.approx(float(np.sqrt(j @ fit.cov @ j)), rel=1e-4)
+
+
+@pytest.mark.slow
+def test_errors_stay_calibrated_in_hanning_smoothed_noise(rng: np.random.Generator) -> None:
+    """Correlated noise (Hanning: rho(1) = 2/3, rho(2) = 1/6): the fit errors are inflated by
+    the measured correlation factor 1 + 2 sum rho(l) exp(-l^2/4s^2), so the pulls keep unit
+    spread (common practice: noise of correlated sums, sum_ij k_i k_j rho(i-j))."""
+    n, amp, cen, fwhm = 1024, 1.0, 500.3, 14.0
+    chan = np.arange(n, dtype=float)
+    freq = 5.0e9 + 1.0e3 * chan
+    clean = amp * np.exp(-0.5 * ((chan - cen) / (fwhm / FWHM)) ** 2)
+    settings = ReduceSettings(max_baseline_order=1, ripple=False)
+    pulls = []
+    for _ in range(300):
+        white = rng.normal(0.0, 0.12, n + 2)
+        noise = 0.25 * white[:-2] + 0.5 * white[1:-1] + 0.25 * white[2:]
+        m = measure(freq, clean + noise, settings)
+        if len(m.lines) != 1:
+            continue
+        ln = m.lines[0]
+        pulls.append(
+            ((ln.peak - amp) / ln.peak_err, (ln.center_chan - cen) / (ln.center_err_hz / 1.0e3))
+        )
+    arr = np.array(pulls)
+    assert arr.shape[0] >= 290
+    std = arr.std(axis=0, ddof=1)
+    assert np.all((std > 0.85) & (std < 1.15)), std
