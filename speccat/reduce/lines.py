@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from speccat.model import Kind, LineFit
@@ -13,6 +15,8 @@ from speccat.reduce.settings import ReduceSettings
 
 #: A peak-fraction width is reported only when its level (fraction x peak) is this many rms.
 WIDTH_LEVEL_SIGMA = 4.0
+#: Gaussian sigma (channels) below which a component is unresolved: neighbours get < 0.4 %.
+UNRESOLVED_SIGMA = 0.3
 
 
 def assemble(
@@ -54,6 +58,8 @@ def assemble(
             xs = chan[lo:hi]
             own = model(xs, group.params[i : i + 1], profile)
             isolated = data[lo:hi] - (model(xs, everything, profile) - own)
+            if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
+                comp = _unresolved(comp, isolated, lo, noise)
             flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)
             out.append(
                 _linefit(
@@ -72,6 +78,16 @@ def assemble(
                 )
             )
     return sorted(out, key=lambda line: line.center_hz)
+
+
+def _unresolved(comp: Component, isolated: np.ndarray, lo: int, noise: Noise) -> Component:
+    """A component narrower than a channel: its fitted peak is an extrapolation, so peak and
+    area are the data at the nearest channel (one-channel errors: the rms)."""
+    near = int(np.rint(comp.center)) - lo
+    if not 0 <= near < isolated.size or not np.isfinite(isolated[near]):
+        return comp
+    value = float(isolated[near])
+    return replace(comp, peak=value, peak_err=noise.rms, area=value, area_err=noise.rms)
 
 
 def _window(comp: Component, n: int, half_fwhm: float) -> tuple[int, int]:

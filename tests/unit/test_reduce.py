@@ -115,6 +115,7 @@ def test_rfi_spike_flagged_maser_not(rng: np.random.Generator) -> None:
     maser, spike = sorted(m.lines, key=lambda line: line.center_chan)
     assert "rfi-spike" in spike.flags and "rfi-spike" not in maser.flags
     assert "rfi-spike" in m.flags
+    assert spike.peak == pytest.approx(80.0, abs=5 * m.rms)  # unresolved: the channel's value
     assert maser.fwhm_chan == pytest.approx(4.0, rel=0.1)
     # the spike does not drag the baseline: it stays within 0.5 sigma of the truth
     assert np.max(np.abs(m.baseline.evaluate() - truth)) < 0.05
