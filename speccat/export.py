@@ -30,7 +30,7 @@ from xml.sax.saxutils import escape, quoteattr
 from speccat import __version__
 from speccat.archive import EXPORT_COLUMNS, Archive, Filters
 from speccat.archive.engine import sqlite_path
-from speccat.archive.records import DESCRIPTIONS, INT_COLUMNS, STRING_COLUMNS, UNITS
+from speccat.archive.records import DESCRIPTIONS, INT_COLUMNS, RECORD_NAMES, STRING_COLUMNS, UNITS
 from speccat.errors import ExportError
 
 FORMATS: dict[str, str] = {
@@ -90,15 +90,19 @@ def _derived_module() -> Any:
         ) from None
 
 
-def with_derived(records: Iterable[dict[str, Any]]) -> Iterator[dict[str, Any]]:
-    """Each record extended by ``speccat.physics.derived.derived_quantities``."""
-    derive: Callable[[Mapping[str, Any]], Mapping[str, Any]] = _derived_module().derived_quantities
-    for rec in records:
-        extra = {
-            k: (v if not isinstance(v, float) or math.isfinite(v) else None)
-            for k, v in derive(rec).items()
-        }
-        yield {**rec, **extra}
+def with_derived(rows: Iterable[list[Any]]) -> Iterator[list[Any]]:
+    """Export rows (``RECORD_NAMES`` order) extended by the ``DERIVED_COLUMNS`` values of
+    ``speccat.physics.derived.derived_quantities`` (non-finite values become None)."""
+    module = _derived_module()
+    derive: Callable[[Mapping[str, Any]], Mapping[str, Any]] = module.derived_quantities
+    names: Sequence[str] = module.DERIVED_COLUMNS
+    for values in rows:
+        extra = derive(dict(zip(RECORD_NAMES, values, strict=True)))
+        out = values[: len(EXPORT_COLUMNS)]
+        for name in names:
+            v = extra.get(name)
+            out.append(v if not isinstance(v, float) or math.isfinite(v) else None)
+        yield out
 
 
 def provenance(archive_url: str, filters: Filters) -> dict[str, Any]:
@@ -135,35 +139,31 @@ def _ecsv_cell(value: Any) -> str:
     return s
 
 
-# ---- writers -----------------------------------------------------------------------------------
+# ---- writers: ``rows`` are sequences aligned with ``columns`` ------------------------------
 def write_csv(
-    out: IO[str],
-    records: Iterable[Mapping[str, Any]],
-    columns: Sequence[Column],
-    meta: Mapping[str, Any],
+    out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
+    # the csv module writes None as an empty field and floats with repr: exact, and all in C
     writer = csv.writer(out, lineterminator="\n")
-    names = [c.name for c in columns]
-    writer.writerow(names)
+    writer.writerow([c.name for c in columns])
+    width = len(columns)
     n = 0
-    for rec in records:
-        writer.writerow([text(rec.get(name)) for name in names])
+    for values in rows:
+        writer.writerow(values[:width])
         n += 1
     return n
 
 
 def write_json(
-    out: IO[str],
-    records: Iterable[Mapping[str, Any]],
-    columns: Sequence[Column],
-    meta: Mapping[str, Any],
+    out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
     names = [c.name for c in columns]
+    encode = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
     out.write("[")
     n = 0
-    for rec in records:
+    for values in rows:
         out.write(",\n" if n else "\n")
-        out.write(json.dumps({k: rec.get(k) for k in names}, ensure_ascii=False, allow_nan=False))
+        out.write(encode(dict(zip(names, values, strict=False))))
         n += 1
     out.write("\n]\n")
     return n
@@ -188,15 +188,15 @@ def ecsv_header(columns: Sequence[Column], meta: Mapping[str, Any]) -> str:
 
 def write_ecsv(
     out: IO[str],
-    records: Iterable[Mapping[str, Any]],
+    rows: Iterable[Sequence[Any]],
     columns: Sequence[Column],
     meta: Mapping[str, Any],
 ) -> int:
     out.write(ecsv_header(columns, meta))
-    names = [c.name for c in columns]
+    width = len(columns)
     n = 0
-    for rec in records:
-        out.write(" ".join(_ecsv_cell(rec.get(name)) for name in names))
+    for values in rows:
+        out.write(" ".join(map(_ecsv_cell, values[:width])))
         out.write("\n")
         n += 1
     return n
@@ -235,23 +235,23 @@ _VOTABLE_FOOTER = "    </TABLEDATA>\n   </DATA>\n  </TABLE>\n </RESOURCE>\n</VOT
 
 def write_votable(
     out: IO[str],
-    records: Iterable[Mapping[str, Any]],
+    rows: Iterable[Sequence[Any]],
     columns: Sequence[Column],
     meta: Mapping[str, Any],
 ) -> int:
     out.write(votable_header(columns, meta))
-    names = [c.name for c in columns]
+    width = len(columns)
     n = 0
-    for rec in records:
-        cells = "".join(f"<TD>{_xml_text(rec.get(name))}</TD>" for name in names)
-        out.write(f"     <TR>{cells}</TR>\n")
+    for values in rows:
+        cells = "</TD><TD>".join(map(_xml_text, values[:width]))
+        out.write(f"     <TR><TD>{cells}</TD></TR>\n")
         n += 1
     out.write(_VOTABLE_FOOTER)
     return n
 
 
 WRITERS: dict[
-    str, Callable[[IO[str], Iterable[Mapping[str, Any]], Sequence[Column], Mapping[str, Any]], int]
+    str, Callable[[IO[str], Iterable[Sequence[Any]], Sequence[Column], Mapping[str, Any]], int]
 ] = {
     "csv": write_csv,
     "ecsv": write_ecsv,
@@ -326,10 +326,10 @@ def export(
         raise ExportError(f"{target} is the archive itself; choose another output file")
     columns = export_columns(derived)
     meta = provenance(archive.url, filters)
-    records: Iterable[dict[str, Any]] = archive.iter_detections(
+    rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch
     )
     if derived:
-        records = with_derived(records)
+        rows = with_derived(rows)
     with atomic_output(target, force) as out:
-        return WRITERS[fmt](out, records, columns, meta)
+        return WRITERS[fmt](out, rows, columns, meta)

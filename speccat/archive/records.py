@@ -112,21 +112,21 @@ JOINED_COLUMNS = frozenset({"file", "intensity_unit", "rms", "ra_deg", "dec_deg"
 
 def record_select() -> Select[Any]:
     """SELECT of every record column, detections joined to their spectrum and file."""
-    cols = [SQL_COLUMNS[name].label(name) for name in _RECORD_NAMES]
+    cols = [SQL_COLUMNS[name].label(name) for name in RECORD_NAMES]
     joined = detections.join(spectra, spectra.c.id == detections.c.spectrum_id).join(
         files, files.c.id == spectra.c.file_id
     )
     return select(*cols).select_from(joined)
 
 
-_RECORD_NAMES = EXPORT_COLUMNS + EXTRA_COLUMNS
-_MHZ_AT = tuple(_RECORD_NAMES.index(n) for n in ("rest_freq_mhz", "obs_freq_mhz"))
-_TIME_AT = _RECORD_NAMES.index("obs_time")
+RECORD_NAMES = EXPORT_COLUMNS + EXTRA_COLUMNS
+_MHZ_AT = tuple(RECORD_NAMES.index(n) for n in ("rest_freq_mhz", "obs_freq_mhz"))
+_TIME_AT = RECORD_NAMES.index("obs_time")
 
 
-def to_record(row: Any) -> dict[str, Any]:
-    """A result row of ``record_select`` as an export record (MHz, ISO times, None = unknown).
-    Non-finite numbers never reach the archive (``clean_float``), so none come back."""
+def to_values(row: Any) -> list[Any]:
+    """A result row of ``record_select`` as export values in ``RECORD_NAMES`` order (MHz, ISO
+    times, None = unknown). Non-finite numbers never reach the archive (``clean_float``)."""
     values = list(row)
     for i in _MHZ_AT:
         if values[i] is not None:
@@ -134,7 +134,12 @@ def to_record(row: Any) -> dict[str, Any]:
     stamp = values[_TIME_AT]
     if isinstance(stamp, datetime):
         values[_TIME_AT] = stamp.isoformat()
-    return dict(zip(_RECORD_NAMES, values, strict=True))
+    return values
+
+
+def to_record(row: Any) -> dict[str, Any]:
+    """A result row of ``record_select`` as an export record keyed by ``RECORD_NAMES``."""
+    return dict(zip(RECORD_NAMES, to_values(row), strict=True))
 
 
 def clean_float(value: float | None) -> float | None:

@@ -155,7 +155,7 @@ def test_failed_export_leaves_nothing(
     filled_archive: Any, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     archive, _ = filled_archive
-    real = archive.iter_detections
+    real = archive.iter_values
 
     def broken(*args: Any, **kwargs: Any) -> Any:
         for i, rec in enumerate(real(*args, **kwargs)):
@@ -163,7 +163,7 @@ def test_failed_export_leaves_nothing(
                 raise RuntimeError("disk vanished")
             yield rec
 
-    monkeypatch.setattr(archive, "iter_detections", broken)
+    monkeypatch.setattr(archive, "iter_values", broken)
     with pytest.raises(RuntimeError):
         export(archive, Filters(), tmp_path / "half.ecsv")
     assert list(tmp_path.iterdir()) == []
