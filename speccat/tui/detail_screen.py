@@ -48,6 +48,15 @@ class DetailScreen(ReportsWorkerFailures, Screen[None]):
             tooltip="show the line (centre ±4 FWHM) or the whole band",
         ),
         Binding("space", "mark", "Mark", id="detail.mark"),
+        Binding(
+            "pagedown",
+            "scroll_facts(1)",
+            "Scroll facts down",
+            show=False,
+            id="detail.facts_down",
+            tooltip="candidates, flags and derived quantities",
+        ),
+        Binding("pageup", "scroll_facts(-1)", "Scroll facts up", show=False, id="detail.facts_up"),
     ]
 
     velocity_axis: reactive[bool] = reactive(True)
@@ -156,6 +165,13 @@ class DetailScreen(ReportsWorkerFailures, Screen[None]):
             self.notify("unidentified: no rest frequency, so no velocity axis")
             return
         self.velocity_axis = not self.velocity_axis
+
+    def action_scroll_facts(self, direction: int) -> None:
+        facts = self.query_one("#more-facts", VerticalScroll)
+        if direction > 0:
+            facts.scroll_page_down(animate=False)
+        else:
+            facts.scroll_page_up(animate=False)
 
     def action_toggle_zoom(self) -> None:
         self.zoomed = not self.zoomed

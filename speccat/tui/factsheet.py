@@ -47,7 +47,8 @@ def fit_text(d: Detail) -> Content:
         ("integral", value_pm(r.get("integral"), r.get("integral_err"), f"{unit} km/s")),
         ("obs freq", f"{r['obs_freq_mhz']:.6f} MHz" if _finite(r.get("obs_freq_mhz")) else "—"),
         ("rest freq", f"{rest:.6f} MHz" if _finite(rest) else "— (unidentified)"),
-        ("rms, S/N", f"{value_pm(r.get('rms'), None, unit)}, {value_pm(r.get('snr'), None)}"),
+        ("rms", f"{r['rms']:.3g} {unit}" if _finite(r.get("rms")) else "—"),
+        ("S/N", f"{r['snr']:.1f}" if _finite(r.get("snr")) else "—"),
         ("kind", f"{r.get('kind') or '—'}, Stokes {r.get('stokes') or '?'}"),
     ]
     title = f"Fit of detection #{r.get('detection_id')}"

@@ -77,9 +77,11 @@ def export(archive: Any, job: ExportJob) -> int:
     fmt = ex.format_for(job.path)
     meta = ex.provenance(archive.url, job.filters)
     meta["selection"] = f"{len(job.rows)} detections marked in speccat browse"
-    rows = sorted(job.rows, key=lambda r: r["detection_id"])
+    columns = ex.export_columns(False)
+    records = sorted(job.rows, key=lambda r: r["detection_id"])
+    rows = [[rec.get(col.name) for col in columns] for rec in records]
     with ex.atomic_output(Path(job.path), job.overwrite) as out:
-        return int(ex.WRITERS[fmt](out, rows, ex.export_columns(False), meta))
+        return int(ex.WRITERS[fmt](out, rows, columns, meta))
 
 
 @dataclass(frozen=True, eq=False)

@@ -243,6 +243,16 @@ async def test_mark_and_export_marked_rows_then_refuse_and_confirm_overwrite(
         await pilot.press("enter")
         await until(pilot, out.exists)
         assert sorted(read_ids(out)) == sorted([first, second])
+        # the marked rows are written exactly as `speccat export` writes the same detections
+        from speccat.export import export
+
+        everything = tmp_path / "everything.csv"
+        export(archive, Filters(), everything)
+        full = everything.read_text().splitlines()
+        picked = out.read_text().splitlines()
+        assert picked[0] == full[0]
+        by_id = {line.split(",", 1)[0]: line for line in full[1:]}
+        assert all(line == by_id[line.split(",", 1)[0]] for line in picked[1:])
 
         # exporting everything to the same name asks first; "n" keeps the file
         await pilot.press("X")
@@ -261,6 +271,26 @@ async def test_mark_and_export_marked_rows_then_refuse_and_confirm_overwrite(
         await until(pilot, lambda: isinstance(app.screen, ConfirmOverwrite))
         await pilot.press("y")
         await until(pilot, lambda: len(read_ids(out)) == archive.count(Filters()))
+
+
+@sync
+async def test_marked_rows_export_to_ecsv_with_units(archive: Any, tmp_path: Path) -> None:
+    from astropy.table import Table
+
+    out = tmp_path / "picked.ecsv"
+    app = make_app(archive)
+    async with app.run_test(size=SIZE) as pilot:
+        await until(pilot, loaded(app))
+        table = table_of(app)
+        ids = [table.row(i)["detection_id"] for i in range(3)]
+        await pilot.press("space", "space", "space", "x")
+        await until(pilot, lambda: isinstance(app.screen, ExportPrompt))
+        app.screen.query_one("#export-path", Input).value = str(out)
+        await pilot.press("enter")
+        await until(pilot, out.exists)
+    back = Table.read(out, format="ascii.ecsv")  # astropy reads what we wrote
+    assert sorted(back["detection_id"]) == sorted(ids)
+    assert str(back["v_lsr_kms"].unit) == "km / s"
 
 
 @sync
