@@ -10,9 +10,7 @@ tables are byte-for-byte unchanged afterwards. The CLI is driven in-process thro
 from __future__ import annotations
 
 import asyncio
-import hashlib
 import json
-import sqlite3
 import subprocess
 import sys
 import time
@@ -20,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
+from robust_archive import table_digests
 from tui_archive import build_archive
 
 HUGE = "x" * 100_000
@@ -59,25 +58,6 @@ BAD_RANGES = (
     ("--since", "yesterday"),
     ("--kind", "sideways"),
 )
-
-
-def table_digests(path: Path) -> dict[str, str]:
-    """SHA-256 of every table's rows in id order (the archive's content, not its pages)."""
-    db = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
-    try:
-        names = [
-            r[0]
-            for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")
-        ]
-        out = {}
-        for name in names:
-            h = hashlib.sha256()
-            for row in db.execute(f'SELECT * FROM "{name}" ORDER BY 1'):
-                h.update(repr(row).encode())
-            out[name] = h.hexdigest()
-        return out
-    finally:
-        db.close()
 
 
 @pytest.fixture(scope="module")

@@ -12,7 +12,6 @@ file is in.
 
 from __future__ import annotations
 
-import hashlib
 import multiprocessing as mp
 import os
 import signal
@@ -25,80 +24,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 from hostile_inputs import bases
+from robust_archive import Signature, integrity, signatures
 
 SEED = 20261202
 FORK_TRIALS = 10
 CLI_TRIALS = 2
-
-#: per file: spectra, detections, candidates, and a digest of every stored value that a file
-#: determines (axis and data blobs, fit values, identifications); ids, runs, nights left out.
-Signature = tuple[int, int, int, str]
-
-
-def _tables(db: sqlite3.Connection) -> set[str]:
-    return {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
-
-
-def _columns(db: sqlite3.Connection, table: str, drop: set[str]) -> list[str]:
-    cols = [r[1] for r in db.execute(f'PRAGMA table_info("{table}")')]
-    return [c for c in cols if c not in drop]
-
-
-def signatures(archive: Path) -> dict[str, Signature]:
-    """sha256 -> Signature for every file in the archive."""
-    db = sqlite3.connect(archive)
-    try:
-        skip = {"id", "file_id", "spectrum_id", "detection_id", "run_id", "night", "path"}
-        s_cols = _columns(db, "spectra", skip)
-        d_cols = _columns(db, "detections", skip)
-        c_cols = _columns(db, "candidates", skip)
-        has_data = "spectrum_data" in _tables(db)
-        out: dict[str, Signature] = {}
-        for file_id, sha in db.execute("SELECT id, sha256 FROM files").fetchall():
-            h = hashlib.sha256()
-            spec = db.execute(
-                f"SELECT id, {', '.join(s_cols)} FROM spectra WHERE file_id = ? "
-                'ORDER BY hdu, "row", id',
-                (file_id,),
-            ).fetchall()
-            n_det = n_cand = 0
-            for sid, *values in spec:
-                h.update(repr(values).encode())
-                if has_data:
-                    h.update(
-                        repr(
-                            db.execute(
-                                "SELECT * FROM spectrum_data WHERE spectrum_id = ?", (sid,)
-                            ).fetchall()[0][1:]
-                        ).encode()
-                    )
-                dets = db.execute(
-                    f"SELECT id, {', '.join(d_cols)} FROM detections WHERE spectrum_id = ? "
-                    "ORDER BY center_hz, id",
-                    (sid,),
-                ).fetchall()
-                for did, *dvalues in dets:
-                    n_det += 1
-                    h.update(repr(dvalues).encode())
-                    cands = db.execute(
-                        f"SELECT {', '.join(c_cols)} FROM candidates WHERE detection_id = ? "
-                        'ORDER BY "rank"',
-                        (did,),
-                    ).fetchall()
-                    n_cand += len(cands)
-                    h.update(repr(cands).encode())
-            out[sha] = (len(spec), n_det, n_cand, h.hexdigest())
-        return out
-    finally:
-        db.close()
-
-
-def integrity(archive: Path) -> str:
-    db = sqlite3.connect(archive)
-    try:
-        return str(db.execute("PRAGMA integrity_check").fetchone()[0])
-    finally:
-        db.close()
 
 
 def _run_ingest(folder: str, archive: str) -> None:
