@@ -137,10 +137,11 @@ def find_seeds(
     threshold: float,
     taken: list[tuple[float, float]],
     limit: int,
+    reach: float = 2.0,
 ) -> list[Seed]:
     """Peaks above ``threshold`` in any filtered spectrum, strongest first, one per feature.
 
-    A peak is shadowed (dropped) when it lies within 2 sqrt(a^2 + s^2) channels of a feature
+    A peak is shadowed (dropped) when it lies within ``reach`` sqrt(a^2 + s^2) channels of a feature
     already accepted or already fitted (``taken``: centre, sigma), a the feature's sigma and s
     the kernel's: it is that feature's own response at another scale.
     """
@@ -161,8 +162,8 @@ def find_seeds(
     if taken:
         cen_t = np.array([c for c, _ in taken])[:, None]
         wid_t = np.array([a for _, a in taken])[:, None]
-        reach = 2.0 * np.sqrt(wid_t**2 + w_all[None, :] ** 2)
-        alive &= ~np.any(np.abs(cen_t - p_all[None, :]) < reach, axis=0)
+        zone = reach * np.sqrt(wid_t**2 + w_all[None, :] ** 2)
+        alive &= ~np.any(np.abs(cen_t - p_all[None, :]) < zone, axis=0)
     corr = correlation_factor(rho, sigmas)
     seeds: list[Seed] = []
     score = np.where(alive, v_all, -np.inf)
@@ -176,7 +177,7 @@ def find_seeds(
         seeds.append(
             Seed(float(p_all[k]), float(s), float(filtered / (np.sqrt(np.pi) * s)), float(v_all[k]))
         )
-        shadow = np.abs(p_all - p_all[k]) < 2.0 * np.sqrt(s**2 + w_all**2)
+        shadow = np.abs(p_all - p_all[k]) < reach * np.sqrt(s**2 + w_all**2)
         score[shadow] = -np.inf
         score[k] = -np.inf
     return seeds

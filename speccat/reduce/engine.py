@@ -102,30 +102,46 @@ def _fit_all(
         if x.size < p0.size + 1:
             continue
         y = resid[lo:hi][sel] - model(x, others, s.profile)
-        fit = _simplest(x, y, fit_components(x, y, p0, s.profile), noise, s.detect_sigma)
+        fit = _simplest(x, y, p0, noise, s.detect_sigma)
         groups.append(Group(fit.params, fit, lo, hi))
     return groups
 
 
 def _simplest(
-    x: np.ndarray, y: np.ndarray, fit: GroupFit, noise: Noise, detect_sigma: float
+    x: np.ndarray, y: np.ndarray, p0: np.ndarray, noise: Noise, detect_sigma: float
 ) -> GroupFit:
-    """Drop blend components whose amplitude is below detect_sigma times its own error.
+    """Fit ``p0`` jointly, then drop components one at a time, refitting from the remaining
+    start values: first any that left the window or became absurd, then any whose amplitude
+    is below detect_sigma times its own error.
 
     The amplitude's Wald statistic (A / sigma_A)^2 approximates the rise of chi^2 when the
     component is removed and the others refitted (Wald 1943, Trans. AMS 54, 426), so this is
     the detection threshold applied to each component given the others; one refit per drop.
     """
-    npar = fit.params.shape[1]
+    profile = "gaussian" if p0.shape[1] == 3 else "voigt"
+    fit = fit_components(x, y, p0, profile)
+    span = float(x[-1] - x[0]) if x.size > 1 else 1.0
     while fit.params.shape[0] > 1:
-        amp = fit.params[:, 0]
-        var = np.diag(fit.cov)[0::npar]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            wald = np.where(var > 0, np.abs(amp) / np.sqrt(var), 0.0)
-        worst = int(np.argmin(wald))
-        if wald[worst] >= detect_sigma:
-            break
-        fit = fit_components(x, y, np.delete(fit.params, worst, axis=0), fit.profile)
+        p = fit.params
+        wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
+        bad = (
+            ~np.all(np.isfinite(p), axis=1)
+            | (p[:, 1] < x[0] - 0.25 * span)
+            | (p[:, 1] > x[-1] + 0.25 * span)
+            | (wid > 2.0 * span)
+            | (wid < 0.05)
+        )
+        if bad.any():
+            worst = int(np.flatnonzero(bad)[0])
+        else:
+            var = np.diag(fit.cov)[0 :: p.shape[1]]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                wald = np.where(var > 0, np.abs(p[:, 0]) / np.sqrt(var), 0.0)
+            worst = int(np.argmin(wald))
+            if wald[worst] >= detect_sigma:
+                break
+        p0 = np.delete(p0, worst, axis=0)
+        fit = fit_components(x, y, p0, profile)
     return fit
 
 
@@ -213,7 +229,10 @@ def detect_and_fit(
             left[lo:hi] -= np.where(valid[lo:hi], model(chan[lo:hi], p[None, :], profile), 0.0)
         bank = filter_bank(left, sigmas, noise.rms, noise.rho)
         room = settings.max_lines - params.shape[0]
-        seeds = find_seeds(bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, [], room)
+        reach = 2.0 if profile == "gaussian" else 4.0  # Lorentzian wings reach further
+        seeds = find_seeds(
+            bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, [], room, reach
+        )
         if not seeds:
             break
         start = np.concatenate((params, seed_params(seeds, profile)))

@@ -118,14 +118,16 @@ def test_error_calibration_and_landman_centre_error(rng: np.random.Generator) ->
     assert np.median(pulls[:, 4]) == pytest.approx(expected, rel=0.05)
 
 
-def test_voigt_recovers_lorentzian_width(rng: np.random.Generator) -> None:
+@pytest.mark.parametrize(("sigma_g", "gamma"), [(8.0, 6.0), (5.0, 2.0), (3.0, 8.0)])
+def test_voigt_recovers_lorentzian_width(
+    rng: np.random.Generator, sigma_g: float, gamma: float
+) -> None:
     """Voigt option: scipy.special.voigt_profile (reference implementation) as the truth."""
     from scipy.special import voigt_profile
 
     n = 4096
     chan = np.arange(n, dtype=float)
     freq = 8.0e9 + 500.0 * chan
-    sigma_g, gamma = 8.0, 6.0
     y = 40.0 * voigt_profile(chan - 2000.0, sigma_g, gamma) + rng.normal(0.0, 0.01, n)
     m = measure(freq, y, ReduceSettings(profile="voigt"))
     assert len(m.lines) == 1
