@@ -147,8 +147,27 @@ class QueryMixin:
         """Like ``iter_detections`` but each record as a list in ``RECORD_NAMES`` order
         (the export's fast path)."""
         stmt = record_select().where(*self._where(filters)).order_by(*self._order(sort, descending))
+        batch = max(1, batch)
+        if sort == "detection_id":
+            # keyset chunks over the primary key, one short read transaction each, so a long
+            # export never pins the SQLite WAL while an ingest is writing
+            ident = detections.c.id
+            last: int | None = None
+            while True:
+                chunk = (
+                    stmt
+                    if last is None
+                    else stmt.where(ident < last if descending else ident > last)
+                )
+                with self._reader.connect() as conn:
+                    rows = conn.execute(chunk.limit(batch)).all()
+                for row in rows:
+                    yield to_values(row)
+                if len(rows) < batch:
+                    return
+                last = int(rows[-1][0])
         with self._reader.connect() as conn:
-            result = conn.execution_options(yield_per=max(1, batch)).execute(stmt)
+            result = conn.execution_options(yield_per=batch).execute(stmt)
             for row in result:
                 yield to_values(row)
 
