@@ -74,6 +74,14 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
             tooltip="write every detection matching the filters to a file",
         ),
         Binding("ctrl+r", "clear_filters", "Clear all filters", show=False, id="browse.clear"),
+        Binding(
+            "f4",
+            "pick",
+            "Pick a value",
+            show=False,
+            id="browse.pick",
+            tooltip="choose a source (or, in a field, that field's value) from the archive",
+        ),
     ]
 
     class Distinct(Message):
@@ -190,6 +198,9 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
 
     def action_to_table(self) -> None:
         self.query_one(DetectionTable).focus()
+
+    def action_pick(self) -> None:
+        self.query_one(FilterForm).action_pick()
 
     def action_clear_filters(self) -> None:
         self.query_one(FilterForm).clear()

@@ -161,8 +161,8 @@ class DetailScreen(ReportsWorkerFailures, Screen[None]):
         self.table.action_cursor(delta)
 
     def action_toggle_axis(self) -> None:
-        if self.detail is not None and self.detail.rest_hz is None and not self.velocity_axis:
-            self.notify("unidentified: no rest frequency, so no velocity axis")
+        if self.detail is not None and self.detail.rest_hz is None:
+            self.notify("unidentified line: no rest frequency, so the axis stays in frequency")
             return
         self.velocity_axis = not self.velocity_axis
 

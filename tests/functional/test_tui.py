@@ -164,6 +164,24 @@ async def test_unidentified_picker_filters(archive: Any) -> None:
 
 
 @sync
+async def test_picker_offers_the_archives_values(archive: Any) -> None:
+    from speccat.tui.widgets.modals import ValuePicker
+
+    app = make_app(archive)
+    async with app.run_test(size=SIZE) as pilot:
+        await until(pilot, loaded(app))
+        form = app.screen.query_one("#filters")
+        await until(pilot, lambda: "source" in form.choices)
+        assert form.choices["source"] == archive.distinct("source")
+        await pilot.press("f4")
+        await until(pilot, lambda: isinstance(app.screen, ValuePicker))
+        await pilot.press("e", "m", "b", "enter")
+        want = archive.count(Filters.parse({"source": "Ember-41"}))
+        await until(pilot, lambda: loaded(app)() and table_of(app).total == want)
+        assert app.screen.query_one("#filter-source", Input).value == "Ember-41"
+
+
+@sync
 async def test_navigation_moves_the_cursor_and_the_position(archive: Any) -> None:
     app = make_app(archive)
     async with app.run_test(size=SIZE) as pilot:

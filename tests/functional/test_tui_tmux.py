@@ -62,7 +62,7 @@ def test_browse_in_tmux_filters_by_source(tmp_path: Path) -> None:
     try:
         _wait_for(socket, session, f"{total} detections match")
         subprocess.run(["tmux", "-L", socket, "send-keys", "-t", session, "/"], check=True)
-        _wait_for(socket, session, "editing filters")
+        _wait_for(socket, session, "filters apply as you type")
         subprocess.run(
             ["tmux", "-L", socket, "send-keys", "-t", session, "-l", "ember*"], check=True
         )

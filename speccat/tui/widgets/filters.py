@@ -75,6 +75,13 @@ FILTER_KEYS: list[BindingType] = [
         show=False,
         id="filters.suggestion",
     ),
+    Binding(
+        "f4",
+        "pick",
+        "Pick a value",
+        id="filters.pick",
+        tooltip="choose from the archive's sources, species, lines or nights",
+    ),
 ]
 
 
@@ -104,6 +111,7 @@ class FilterForm(ReportsWorkerFailures, Widget):
     def __init__(self, parse: Callable[[dict[str, str]], Any], *, id: str | None = None) -> None:
         super().__init__(id=id)
         self._parse = parse
+        self.choices: dict[str, list[str]] = {}
 
     def compose(self) -> ComposeResult:
         with Grid():
@@ -128,9 +136,7 @@ class FilterForm(ReportsWorkerFailures, Widget):
 
     def on_descendant_focus(self) -> None:
         if not self.query_one("#filter-message", Label).has_class("-error"):
-            self.show_message(
-                "editing filters: applied as you type · tab next field · esc to table"
-            )
+            self.show_message("filters apply as you type · tab: next field · F4: pick · esc: table")
 
     def on_resize(self) -> None:
         # three columns fit 80 cells; wide terminals get the whole form on fewer rows
@@ -157,6 +163,7 @@ class FilterForm(ReportsWorkerFailures, Widget):
 
     def set_suggestions(self, key: str, values: Iterable[str]) -> None:
         words = [str(v) for v in values if v]
+        self.choices[key] = words
         if words:
             self.query_one(f"#filter-{key}", Input).suggester = SuggestFromList(
                 words, case_sensitive=False
@@ -185,6 +192,30 @@ class FilterForm(ReportsWorkerFailures, Widget):
     async def _debounce(self) -> None:
         await asyncio.sleep(DEBOUNCE_S)
         self.apply_now()
+
+    def action_pick(self) -> None:
+        """Open the list of archive values for the focused field (or the source field)."""
+        from speccat.tui.widgets.modals import ValuePicker
+
+        focused = self.app.focused
+        key = "source"
+        if (
+            isinstance(focused, Input)
+            and focused.id
+            and focused.id.removeprefix("filter-") in self.choices
+        ):
+            key = focused.id.removeprefix("filter-")
+        values = self.choices.get(key, [])
+        if not values:
+            self.notify(f"no {key} values known yet (the list loads in the background)")
+            return
+
+        def picked(value: str | None) -> None:
+            if value is not None:
+                self.set_value(key, value)
+                self.apply_now()
+
+        self.app.push_screen(ValuePicker(key, values), picked)
 
     def action_apply(self) -> None:
         self.apply_now()

@@ -13,7 +13,7 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.content import Content
 from textual.markup import escape
 from textual.screen import ModalScreen
-from textual.widgets import Button, Input, Label, Static
+from textual.widgets import Button, Input, Label, OptionList, Static
 
 EXPORT_SUFFIXES = (".csv", ".ecsv", ".vot", ".xml", ".json")
 
@@ -72,6 +72,58 @@ def check_export_path(text: str) -> str:
     if not path.parent.is_dir() and path.parent != Path(""):
         return f"✗ folder {path.parent} does not exist"
     return ""
+
+
+class ValuePicker(ModalScreen[str | None]):
+    """Choose one of the archive's values for a filter field; type to narrow the list."""
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("escape", "cancel", "Close the list", id="picker.cancel"),
+        Binding("down", "to_list", "Go to the list", show=False, id="picker.to_list"),
+    ]
+
+    def __init__(self, field: str, values: Sequence[str]) -> None:
+        super().__init__()
+        self.field = field
+        self.values = list(values)
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog picker-dialog"):
+            yield Label(
+                f"Pick a {self.field} ({len(self.values):,} in the archive)", classes="dialog-title"
+            )
+            yield Input(placeholder="type to narrow the list", id="picker-narrow")
+            yield OptionList(*self.values[:MAX_PICK], id="picker-list")
+            yield Label("enter picks · esc closes", classes="dialog-hint")
+
+    @on(Input.Changed, "#picker-narrow")
+    def _narrow(self, event: Input.Changed) -> None:
+        needle = event.value.strip().lower()
+        shown = [v for v in self.values if needle in v.lower()][:MAX_PICK]
+        options = self.query_one("#picker-list", OptionList)
+        options.clear_options()
+        options.add_options(shown)
+        if shown:
+            options.highlighted = 0
+
+    @on(Input.Submitted, "#picker-narrow")
+    def _take_first(self) -> None:
+        options = self.query_one("#picker-list", OptionList)
+        if options.option_count:
+            self.dismiss(str(options.get_option_at_index(options.highlighted or 0).prompt))
+
+    @on(OptionList.OptionSelected)
+    def _picked(self, event: OptionList.OptionSelected) -> None:
+        self.dismiss(str(event.option.prompt))
+
+    def action_to_list(self) -> None:
+        self.query_one("#picker-list", OptionList).focus()
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+MAX_PICK = 2000  # longest list offered; narrowing by typing reaches the rest
 
 
 class ConfirmOverwrite(ModalScreen[bool]):
