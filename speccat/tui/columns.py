@@ -59,6 +59,10 @@ COLUMNS: tuple[Column, ...] = (
     Column("stokes", "Stokes", 6),
     Column("id_score", "id score", 8, ".3f", right=True),
     Column("flags", "flags", 24),
+    Column("species", "species", 8),
+    Column("integral", "integral·km/s", 13, ".4g", right=True),
+    Column("rms", "rms", 9, ".3g", right=True),
+    Column("obs_time", "observed (UTC)", 19),
     Column("detection_id", "#", 8, "d", right=True),
 )
 

@@ -240,6 +240,7 @@ def read_ids(path: Path) -> list[int]:
         return [int(r["detection_id"]) for r in csv.DictReader(fh)]
 
 
+@pytest.mark.slow
 @sync
 async def test_mark_and_export_marked_rows_then_refuse_and_confirm_overwrite(
     archive: Any, tmp_path: Path
