@@ -77,7 +77,7 @@ def test_unidentified_lines_are_drawn_against_frequency() -> None:
 
 
 def test_no_color_legend_names_the_dashed_fit() -> None:
-    data, legend = plot_for(_detail(), velocity_axis=True, zoomed=True, plain=True)
+    _data, legend = plot_for(_detail(), velocity_axis=True, zoomed=True, plain=True)
     assert "dashed" in legend
 
 
