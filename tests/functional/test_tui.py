@@ -213,8 +213,10 @@ async def test_sorting_by_key_and_reversing(archive: Any) -> None:
         assert [table.row(i)["detection_id"] for i in range(10)] == [
             r["detection_id"] for r in want
         ]
+        assert "↓" in table.render_line(0).text  # the sorted column's heading shows the order
         await pilot.press("r")
         await until(pilot, lambda: loaded(app)() and not table.current_query.descending)
+        assert "↑" in table.render_line(0).text
         want = archive.page(Filters(), sort=key, descending=False, limit=10)
         assert [table.row(i)["detection_id"] for i in range(10)] == [
             r["detection_id"] for r in want

@@ -255,7 +255,7 @@ class DetectionTable(ReportsWorkerFailures, ScrollView, can_focus=True):
             title = col.title
             if col.key == self.current_query.sort:
                 sorted_col = i
-                title = f"{title}{'↓' if self.current_query.descending else '↑'}"
+                title = title[: col.width - 1] + ("↓" if self.current_query.descending else "↑")
             texts.append(
                 title[: col.width].rjust(col.width)
                 if col.right
