@@ -19,12 +19,12 @@ class ReduceSettings:
     ``detect_sigma`` is the line-finding threshold in sigma of each matched-filtered spectrum
     (Gaussian kernels, FWHM from ``min_kernel_fwhm_chan`` = 1.5 channels up to a quarter of the
     band in steps of 2, both signs; each filtered sigma from the kernel norm and the measured
-    channel correlation). With the default 5.3, pure white noise gives 0.003 false lines per
-    8,192-channel spectrum (measured: 6 in 2,000 spectra; the bound we hold is 0.01; at 5.0 it
-    was 0.013, 20 in 1,500). A Gaussian line whose peak is 5 times the per-channel rms (what
-    "a 5-sigma line" means here) is found in 99.5 % of trials at FWHM 3 channels and in 100 %
-    at FWHM 5, 10, 20, 50 and 100 channels (200 trials each); the checks are in
-    tests/reference/test_reduce_detection.py.
+    channel correlation). With the default 5.3, pure white noise gives about 0.002 false lines
+    per 8,192-channel spectrum (measured: 9 in 4,000 spectra, two seeds; the bound we hold is
+    0.01; at 5.0 it was 0.013, 20 in 1,500). A Gaussian line whose peak is 5 times the
+    per-channel rms (what "a 5-sigma line" means here) is found in 98.5-99.5 % of trials at
+    FWHM 3 channels and in 100 % at FWHM 5, 10, 20, 50 and 100 channels (two runs of 200
+    trials per width); the checks are in tests/reference/test_reduce_detection.py.
 
     ``max_baseline_order`` bounds the polynomial order chosen by the Bayesian information
     criterion (``baseline_order`` forces one order instead). ``profile`` is the line shape;
