@@ -45,7 +45,7 @@ def compute_sources(
     )
     all_names = select(spectra.c.source).distinct()
     if names is not None:
-        ident = ident.where(d.source.in_(names))
+        ident = ident.where(d.source_lc.in_([n.lower() for n in names]), d.source.in_(names))
         first = first.where(spectra.c.source.in_(names))
         all_names = all_names.where(spectra.c.source.in_(names))
     preferred: dict[str, list[tuple[float, float]]] = defaultdict(list)

@@ -309,3 +309,16 @@ def test_read_only_places_are_clear_errors(tmp_path: Path, monkeypatch: pytest.M
         Archive.open(str(tmp_path / "new.sqlite"), create=True)
     with Archive.open(url, readonly=True) as archive:  # reading still works
         assert archive.count() == 4
+
+
+def test_update_sources_for_some_names_only(archive_url: str) -> None:
+    archive, results = fill_archive(archive_url, range(6))
+    rows = input_rows(results)
+    with archive:
+        assert archive.update_sources(["Nebula-A"]) == 1
+        assert set(archive.source_velocities()) <= {"Nebula-A"}
+        archive.update_sources()
+        everything = archive.source_velocities()
+        archive.update_sources(["Nebula-A", "nebula-b"])  # recomputing changes nothing
+        assert archive.source_velocities() == everything
+    assert set(everything) <= {r["source"] for r in rows}
