@@ -145,18 +145,21 @@ def find_seeds(
     already accepted or already fitted (``taken``: centre, sigma), a the feature's sigma and s
     the kernel's: it is that feature's own response at another scale.
     """
-    pos, scale, val, sign = [], [], [], []
-    for j, (z, d) in enumerate(bank):
-        top, shift = _peaks(np.abs(z), threshold)
-        if top.size:
-            pos.append((top + shift) * d)
-            scale.append(np.full(top.size, j))
-            val.append(np.abs(z[top]))
-            sign.append(np.sign(z[top]))
-    if not pos:
+    # all scales in one array, separated by a zero, so the peak search is one vectorised pass
+    sep = np.zeros(1)
+    flat_z = np.concatenate([part for z, _ in bank for part in (z, sep)])
+    sizes = np.array([z.size for z, _ in bank])
+    starts = np.concatenate(([0], np.cumsum(sizes + 1)[:-1]))
+    top, shift = _peaks(np.abs(flat_z), threshold)
+    if top.size == 0:
         return []
-    p_all, j_all = np.concatenate(pos), np.concatenate(scale)
-    v_all, s_all = np.concatenate(val), np.concatenate(sign)
+    j_all = np.searchsorted(starts, top, side="right") - 1
+    local = top - starts[j_all]
+    shift = np.where((local == 0) | (local == sizes[j_all] - 1), 0.0, shift)
+    decim = np.array([d for _, d in bank], dtype=float)[j_all]
+    p_all = (local + shift) * decim
+    v_all = np.abs(flat_z[top])
+    s_all = np.sign(flat_z[top])
     w_all = sigmas[j_all]
     alive = np.ones(p_all.size, dtype=bool)
     if taken:
