@@ -11,6 +11,7 @@ from typing import Any, ClassVar
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
+from textual.containers import Horizontal, Vertical
 from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import Footer, Input, Label
@@ -21,9 +22,11 @@ from speccat.tui.columns import COLUMNS
 from speccat.tui.notices import ReportsWorkerFailures
 from speccat.tui.widgets.filters import FilterForm
 from speccat.tui.widgets.modals import ConfirmOverwrite, ExportPrompt
+from speccat.tui.widgets.plot import SpectrumPlot
 from speccat.tui.widgets.table import DetectionTable, Query
 
 SUGGESTED = ("source", "species", "line", "night")
+PREVIEW_MIN_WIDTH = 170  # columns from which the table gets a spectrum preview beside it
 
 
 @dataclass(frozen=True)
@@ -89,6 +92,11 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
             self.column, self.values = column, values
             super().__init__()
 
+    class Preview(Message):
+        def __init__(self, detection_id: int, detail: services.Detail) -> None:
+            self.detection_id, self.detail = detection_id, detail
+            super().__init__()
+
     class Exported(Message):
         def __init__(self, path: Path, count: int) -> None:
             self.path, self.count = path, count
@@ -99,15 +107,56 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
         self.archive = archive
         self.total = 0
         self.position = ""
+        self._previewing: int | None = None
 
     def compose(self) -> ComposeResult:
         yield Label(
             f" speccat · detections in {services.archive_label(self.archive)}", id="title-bar"
         )
         yield FilterForm(services.parse_filters, id="filters")
-        yield DetectionTable(self.archive, Query(services.parse_filters({})), id="detections")
+        with Horizontal(id="browse-body"):
+            yield DetectionTable(self.archive, Query(services.parse_filters({})), id="detections")
+            with Vertical(id="preview"):
+                yield Label("", id="preview-title")
+                yield SpectrumPlot(id="preview-plot")
         yield Label("", id="status")
         yield Footer(compact=True)
+
+    def on_resize(self) -> None:
+        """Wide terminals get a live spectrum preview beside the table."""
+        wide = self.size.width >= PREVIEW_MIN_WIDTH
+        if wide != self.has_class("-wide"):
+            self.set_class(wide, "-wide")
+            if wide:
+                table = self.query_one(DetectionTable)
+                self._preview_row(table.row(table.cursor_row))
+
+    def _preview_row(self, row: dict[str, Any] | None) -> None:
+        if row is None or not self.has_class("-wide"):
+            return
+        if row.get("detection_id") == self._previewing:
+            return
+        self._previewing = row.get("detection_id")
+        self._load_preview(row)
+
+    @work(thread=True, exclusive=True, group="preview", exit_on_error=False)
+    def _load_preview(self, row: dict[str, Any]) -> None:
+        detail = services.build_detail(self.archive, row)
+        if not get_current_worker().is_cancelled:
+            self.post_message(self.Preview(row["detection_id"], detail))
+
+    def on_browse_screen_preview(self, event: Preview) -> None:
+        if event.detection_id != self._previewing:
+            return
+        from speccat.tui.detail_screen import plot_for
+
+        data, _ = plot_for(event.detail, velocity_axis=True, zoomed=True, plain=self.app.no_color)
+        self.query_one("#preview-plot", SpectrumPlot).data = data
+        row = event.detail.row
+        axis = "v_LSRK km/s" if event.detail.rest_hz is not None else "MHz"
+        self.query_one("#preview-title", Label).update(
+            f" preview: {row.get('line') or 'unidentified'} in {row.get('source')} ({axis}) · enter inspects"
+        )
 
     def on_mount(self) -> None:
         self.query_one(DetectionTable).focus()
@@ -164,6 +213,7 @@ class BrowseScreen(ReportsWorkerFailures, Screen[None]):
     @on(DetectionTable.RowHighlighted)
     def _highlighted(self, event: DetectionTable.RowHighlighted) -> None:
         self._update_status()
+        self._preview_row(event.row)
         from speccat.tui.detail_screen import DetailScreen
 
         for screen in self.app.screen_stack:

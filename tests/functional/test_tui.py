@@ -424,6 +424,12 @@ async def test_usable_at_small_and_large_sizes(archive: Any, size: tuple[int, in
         table = table_of(app)
         assert table.size.height >= 8  # room for rows under the filter form
         assert table.region.right <= size[0]
+        preview = app.screen.query_one("#preview-plot", SpectrumPlot)
+        if size[0] >= 170:  # wide: a live spectrum preview of the highlighted row
+            await until(pilot, lambda: preview.data is not None)
+            assert preview.region.x >= table.region.right
+        else:
+            assert not preview.display or preview.region.width == 0
         await pilot.press("enter")
         await until(pilot, lambda: isinstance(app.screen, DetailScreen))
         screen = app.screen
