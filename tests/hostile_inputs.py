@@ -610,7 +610,7 @@ def _csv_cases(w: _Writer, text: str, rng: np.random.Generator) -> None:
         w.add(f"csv/trunc_rows{cut}.csv", raw[:cut], "CSV cut inside its rows", "either")
 
 
-def _filesystem_cases(w: _Writer) -> None:
+def _filesystem_cases(w: _Writer, blocking: bool) -> None:
     def folder_named_like_file(p: Path) -> None:
         p.mkdir(parents=True)
         (p / "readme.txt").write_text("a folder, not a spectrum\n")
@@ -648,8 +648,9 @@ def _filesystem_cases(w: _Writer) -> None:
     w.special("fs/self.fits", self_link, "a link to itself")
     w.special("fs/dangling.fits", dangling, "a dangling link")
     w.special("fs/here.fits", dir_link, "a link to its own folder")
-    w.special("fs/pipe.fits", fifo, "a named pipe")
-    w.special("fs/zero.fits", device, "a link to /dev/zero")
+    if blocking:
+        w.special("fs/pipe.fits", fifo, "a named pipe")
+        w.special("fs/zero.fits", device, "a link to /dev/zero")
 
 
 def bases(seed: int = 11) -> dict[str, bytes]:
@@ -692,6 +693,5 @@ def generate(folder: Path, seed: int = 11, special_files: bool = True) -> list[H
     _gzip_cases(w, img, rng)
     _random_cases(w, rng)
     _csv_cases(w, csv_text, rng)
-    if special_files:
-        _filesystem_cases(w)
+    _filesystem_cases(w, blocking=special_files)
     return w.items

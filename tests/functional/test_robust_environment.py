@@ -74,7 +74,7 @@ def committed(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 @pytest.fixture(scope="module")
 def second_night(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return write_files(tmp_path_factory.mktemp("env2") / "second", range(600, 610))
+    return write_files(tmp_path_factory.mktemp("env2") / "second", range(600, 606))
 
 
 @contextmanager
@@ -181,10 +181,10 @@ def test_full_disk_loses_nothing_committed(
         archive = folder / "night.sqlite"
         shutil.copy(committed, archive)
         if mounted:
-            filler = _fill(folder, 256 * 1024)
+            filler = _fill(folder, 160 * 1024)
             proc = cli("--archive", str(archive), "ingest", str(second_night), "--jobs", "1")
         else:
-            limit = archive.stat().st_size + 256 * 1024
+            limit = archive.stat().st_size + 160 * 1024
             proc = cli(
                 "--archive",
                 str(archive),
