@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import re
 
 from speccat.archive.filters import Filters
 
@@ -24,6 +25,9 @@ FILTER_FLAGS: dict[str, str] = {
 def add_filter_arguments(parser: argparse.ArgumentParser) -> None:
     """Add ``--source --species --line --vel --freq --snr --night --kind --unidentified
     --since --until`` (all values are strings, validated by ``Filters.parse``)."""
+    # let "--vel -50:10" through: argparse otherwise takes "-50:10" for an option (it only
+    # recognises plain negative numbers); none of speccat's options starts with "-<digit>"
+    parser._negative_number_matcher = re.compile(r"^-\.?\d")
     group = parser.add_argument_group("filters")
     group.add_argument("--source", metavar="GLOB", help="source name glob (* and ?, any case)")
     group.add_argument("--species", metavar="GLOB", help="species glob, e.g. 'H*' or OH")

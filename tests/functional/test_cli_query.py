@@ -161,3 +161,14 @@ def test_hostile_text_changes_nothing(
             assert code == 1 and err.startswith("speccat: error: ") and err.count("\n") == 1
     with Archive.open(sqlite_archive, readonly=True) as archive:
         assert table_checksums(archive) == before
+
+
+def test_negative_velocity_range_is_a_value(
+    sqlite_archive: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code = main(["--archive", sqlite_archive, "query", "--vel", "-50:10", "--format", "json"])
+    assert code == 0
+    data = json.loads(capsys.readouterr().out)
+    with Archive.open(sqlite_archive, readonly=True) as archive:
+        expected = archive.page(Filters.parse({"vel": "-50:10"}), limit=50)
+    assert [r["detection_id"] for r in data] == [r["detection_id"] for r in expected] != []
