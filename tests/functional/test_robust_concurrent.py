@@ -106,7 +106,8 @@ class ReaderLoop(threading.Thread):
                 with Archive.open(self.archive, readonly=True) as archive:
                     total = archive.count(Filters())
                     rows = archive.page(Filters(), limit=20)
-                    assert len(rows) == min(total, 20)
+                    # two reads, two snapshots: the archive only grows in between
+                    assert min(total, 20) <= len(rows) <= 20
                 self.api_reads += 1
             except Exception as exc:  # recorded, asserted on in the test thread
                 self.api_errors.append(f"{type(exc).__name__}: {exc}")

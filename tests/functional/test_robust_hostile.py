@@ -14,6 +14,7 @@ import signal
 import sqlite3
 import subprocess
 import sys
+import threading
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -162,6 +163,9 @@ class _Stuck(BaseException):
 
 @pytest.fixture
 def alarm() -> Iterator[None]:
+    if threading.current_thread() is not threading.main_thread():
+        pytest.skip("SIGALRM needs the main thread (this test runner calls tests elsewhere)")
+
     def _raise(signum: int, frame: object) -> None:
         raise _Stuck
 
