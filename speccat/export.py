@@ -20,6 +20,7 @@ import math
 import os
 import re
 import tempfile
+import warnings
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from datetime import UTC, datetime
@@ -63,21 +64,55 @@ def format_for(path: str | Path) -> str:
     return FORMATS[suffix]
 
 
-def export_columns(with_derived: bool = False) -> list[Column]:
+_INTENSITY = ("peak", "peak_err", "rms")
+_INTEGRAL = ("integral", "integral_err")
+
+
+def intensity_units(unit: str | None) -> dict[str, str]:
+    """Units of the intensity-valued columns when every row shares ``unit`` (astropy strings);
+    empty when the unit is mixed, missing or not one astropy understands."""
+    if not unit:
+        return {}
+    import astropy.units as u  # deferred: only exports with one intensity unit need it
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # odd header units are simply left out
+            base = u.Unit(unit)
+    except (ValueError, TypeError):
+        return {}
+    integral = (base * u.km / u.s).to_string()
+    return {**dict.fromkeys(_INTENSITY, base.to_string()), **dict.fromkeys(_INTEGRAL, integral)}
+
+
+def export_columns(with_derived: bool = False, intensity_unit: str | None = None) -> list[Column]:
+    """The output columns; ``intensity_unit`` (when all rows share it) gives peak, rms and
+    integral their units."""
+    units = {**UNITS, **intensity_units(intensity_unit)}
     cols = [
         Column(
             name,
             "int" if name in INT_COLUMNS else "str" if name in STRING_COLUMNS else "float",
-            UNITS.get(name, ""),
+            units.get(name, ""),
             DESCRIPTIONS.get(name, ""),
         )
         for name in EXPORT_COLUMNS
     ]
     if with_derived:
         module = _derived_module()
-        units: Mapping[str, str] = getattr(module, "DERIVED_UNITS", {})
-        cols += [Column(n, "float", units.get(n, "")) for n in module.DERIVED_COLUMNS]
+        derived_units: Mapping[str, str] = getattr(module, "DERIVED_UNITS", {})
+        cols += [Column(n, "float", derived_units.get(n, "")) for n in module.DERIVED_COLUMNS]
     return cols
+
+
+def _vounit(unit: str) -> str | None:
+    """An astropy unit string in the VOUnit syntax of VOTable, None when it has none."""
+    import astropy.units as u
+
+    try:
+        return str(u.Unit(unit).to_string("vounit"))
+    except (ValueError, TypeError):
+        return None
 
 
 def _derived_module() -> Any:
@@ -207,7 +242,6 @@ _VOTYPES = {
     "float": 'datatype="double"',
     "str": 'datatype="unicodeChar" arraysize="*"',
 }
-_VOUNITS = {"km / s": "km/s"}
 
 
 def votable_header(columns: Sequence[Column], meta: Mapping[str, Any]) -> str:
@@ -222,8 +256,9 @@ def votable_header(columns: Sequence[Column], meta: Mapping[str, Any]) -> str:
     lines += ['  <TABLE name="detections">', "   <DESCRIPTION>speccat detections</DESCRIPTION>"]
     for c in columns:
         attrs = f"name={quoteattr(c.name)} {_VOTYPES[c.kind]}"
-        if c.unit:
-            attrs += f" unit={quoteattr(_VOUNITS.get(c.unit, c.unit))}"
+        vounit = _vounit(c.unit) if c.unit else None
+        if vounit:
+            attrs += f" unit={quoteattr(vounit)}"
         desc = f"<DESCRIPTION>{escape(c.description)}</DESCRIPTION>" if c.description else ""
         lines.append(f"   <FIELD {attrs}>{desc}</FIELD>")
     lines += ["   <DATA>", "    <TABLEDATA>"]
@@ -324,7 +359,8 @@ def export(
         and target.resolve() == db_file.resolve()
     ):
         raise ExportError(f"{target} is the archive itself; choose another output file")
-    columns = export_columns(derived)
+    units = archive.intensity_units(filters)
+    columns = export_columns(derived, units[0] if len(units) == 1 else None)
     meta = provenance(archive.url, filters)
     rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch

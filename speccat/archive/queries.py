@@ -184,6 +184,18 @@ class QueryMixin:
         with self._reader.connect() as conn:
             return sorted(str(v) for v in conn.execute(stmt).scalars())
 
+    def intensity_units(self, filters: Filters | None = None) -> list[str]:
+        """The distinct intensity units of the matching detections' spectra, sorted."""
+        unit = spectra.c.intensity_unit
+        stmt = (
+            select(unit)
+            .select_from(detections.join(spectra, spectra.c.id == detections.c.spectrum_id))
+            .where(*self._where(filters))
+            .distinct()
+        )
+        with self._reader.connect() as conn:
+            return sorted(str(v) for v in conn.execute(stmt).scalars())
+
     def detections_for_spectrum(self, spectrum_id: int) -> list[dict[str, Any]]:
         stmt = (
             record_select().where(detections.c.spectrum_id == spectrum_id).order_by(detections.c.id)

@@ -239,3 +239,44 @@ def test_votable_survives_markup_and_control_characters(tmp_path: Path) -> None:
     assert set(Table.read(tmp_path / "o.ecsv", format="ascii.ecsv")["source"]) == {
         'Odd\x01Name <&> "q"'
     }
+
+
+def test_one_intensity_unit_becomes_column_units(tmp_path: Path) -> None:
+    import dataclasses
+
+    from archive_fixtures import make_file
+
+    from speccat.model import FileResult
+
+    with Archive.open(str(tmp_path / "k.sqlite"), create=True) as archive:
+        run_id = archive.begin_run({})
+        for seed in range(3):
+            f = make_file(seed)
+            spectra = tuple(
+                dataclasses.replace(s, spectrum=dataclasses.replace(s.spectrum, intensity_unit="K"))
+                for s in f.spectra
+            )
+            archive.store_file(run_id, FileResult(f.path, f.size_bytes, f.sha256, spectra), "n")
+        assert archive.intensity_units() == ["K"]
+        export(archive, Filters(), tmp_path / "k.ecsv")
+        export(archive, Filters(), tmp_path / "k.vot")
+    for fmt in ("ascii.ecsv", "votable"):
+        table = Table.read(
+            tmp_path / f"k.{fmt.split('.')[-1].replace('votable', 'vot')}", format=fmt
+        )
+        # astropy's own unit algebra is the reference: K times km/s
+        import astropy.units as u
+
+        assert table["peak"].unit == u.K and table["rms"].unit == u.K
+        assert table["integral"].unit == u.K * u.km / u.s
+        assert table["v_lsr_kms"].unit == u.km / u.s
+
+
+def test_mixed_intensity_units_leave_those_columns_without_unit(
+    filled_archive: Any, tmp_path: Path
+) -> None:
+    archive, _ = filled_archive
+    assert archive.intensity_units() == ["Jy", "K"]
+    export(archive, Filters(), tmp_path / "m.ecsv")
+    table = Table.read(tmp_path / "m.ecsv", format="ascii.ecsv")
+    assert table["peak"].unit is None and table["integral"].unit is None
