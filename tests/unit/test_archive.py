@@ -322,3 +322,18 @@ def test_update_sources_for_some_names_only(archive_url: str) -> None:
         archive.update_sources(["Nebula-A", "nebula-b"])  # recomputing changes nothing
         assert archive.source_velocities() == everything
     assert set(everything) <= {r["source"] for r in rows}
+
+
+@pytest.mark.parametrize("n", [0, 1, 7, 8192])
+def test_blob_codecs_are_bit_exact(n: int) -> None:
+    from speccat.archive.blobs import decode_data, decode_freq, encode_data, encode_freq
+
+    rng = np.random.default_rng(n)
+    freq = np.sort(rng.uniform(1e9, 2e9, n))
+    special = np.array([np.nan, np.inf, -np.inf, -0.0, 1e-45, 3.4e38], np.float32)
+    i = rng.normal(0, 1, n).astype(np.float32)
+    i[: min(n, special.size)] = special[: min(n, special.size)]
+    v = rng.normal(0, 1e-3, n).astype(np.float32)
+    back = decode_data(encode_data({"I": i, "V": v}), ["I", "V"], n)
+    assert back["I"].tobytes() == i.tobytes() and back["V"].tobytes() == v.tobytes()
+    assert decode_freq(encode_freq(freq)).tobytes() == freq.tobytes()
