@@ -141,7 +141,7 @@ async def test_a_bad_value_shows_its_message_and_keeps_the_rows(archive: Any) ->
         total = table_of(app).total
         await type_filter(pilot, app, "vel", "fast")
         message = app.screen.query_one("#filter-message", Label)
-        await until(pilot, lambda: "--vel" in str(message.render()))
+        await until(pilot, lambda: "v_LSR: expected MIN:MAX" in str(message.render()))
         assert message.has_class("-error")
         assert table_of(app).total == total
         await pilot.press("backspace", "backspace", "backspace", "backspace")

@@ -96,7 +96,8 @@ class FilterForm(ReportsWorkerFailures, Widget):
     FilterForm .field { height: 1; }
     FilterForm .field Label { width: 9; color: $text-muted; }
     FilterForm .field Input, FilterForm .field Select { width: 1fr; }
-    FilterForm #filter-message { height: 1; width: 1fr; color: $text-muted; }
+    FilterForm .message-row { height: auto; max-height: 3; }
+    FilterForm #filter-message { height: auto; width: 1fr; color: $text-muted; }
     FilterForm #filter-message.-error { color: $error; text-style: bold; }
     FilterForm #match-count { height: 1; width: auto; text-style: bold; }
     """
@@ -127,7 +128,7 @@ class FilterForm(ReportsWorkerFailures, Widget):
                 yield Select(
                     UNIDENTIFIED_CHOICES, prompt="any", id="filter-unidentified", compact=True
                 )
-        with Horizontal(classes="field"):
+        with Horizontal(classes="message-row"):
             yield Label("", id="filter-message")
             yield Label("", id="match-count")
 
@@ -230,7 +231,7 @@ class FilterForm(ReportsWorkerFailures, Widget):
         try:
             filters = self._parse(values)
         except SpeccatError as exc:
-            self.show_message(f"✗ {exc}", error=True)
+            self.show_message(f"✗ {_in_form_terms(str(exc))}", error=True)
             return
         self.show_message(_describe(values) if values else "no filter: every detection")
         self.post_message(self.Applied(filters, values))
@@ -238,3 +239,11 @@ class FilterForm(ReportsWorkerFailures, Widget):
 
 def _describe(values: dict[str, str]) -> str:
     return "filter: " + ", ".join(f"{k}={v}" for k, v in values.items())
+
+
+def _in_form_terms(message: str) -> str:
+    """Name the form's field rather than the command-line flag in a FilterError message."""
+    labels = {f.key: f.label for f in TEXT_FIELDS} | {"kind": "kind", "unidentified": "identity"}
+    for key, label in labels.items():
+        message = message.replace(f"--{key}:", f"{label}:")
+    return message
