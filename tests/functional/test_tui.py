@@ -51,7 +51,7 @@ def sync(fn: Callable[..., Coroutine[Any, Any, None]]) -> Callable[..., None]:
     return wrapper
 
 
-async def until(pilot: Pilot[Any], cond: Callable[[], bool], timeout: float = 20.0) -> None:
+async def until(pilot: Pilot[Any], cond: Callable[[], bool], timeout: float = 60.0) -> None:
     """Let the app run until ``cond()`` holds (workers are threads, so poll)."""
     end = time.monotonic() + timeout
     while not cond():

@@ -35,7 +35,7 @@ def archive(archive_path: Path) -> Any:
     a.close()
 
 
-async def _wait(pilot: Pilot[Any], cond: Any, timeout: float = 30.0) -> None:
+async def _wait(pilot: Pilot[Any], cond: Any, timeout: float = 60.0) -> None:
     end = time.monotonic() + timeout
     while not cond():
         assert time.monotonic() < end, "the app did not settle"
