@@ -4,8 +4,13 @@ signatures and table digests, read straight from the SQLite file with ``sqlite3`
 from __future__ import annotations
 
 import hashlib
+import os
 import sqlite3
+import uuid
+from collections.abc import Iterator
 from pathlib import Path
+
+import pytest
 
 #: per file: spectra, detections, candidates, and a digest of every stored value that a file
 #: determines (axis and data blobs, fit values, identifications); ids, runs, nights left out.
@@ -95,3 +100,31 @@ def table_digests(path: Path) -> dict[str, str]:
         return out
     finally:
         db.close()
+
+
+def fresh_pg_database() -> Iterator[str]:
+    """For a fixture: a new, empty database on the test server (dropped afterwards), made and
+    dropped over an AUTOCOMMIT connection; skips when ``SPECCAT_TEST_PG_URL`` is not set."""
+    base = os.environ.get("SPECCAT_TEST_PG_URL")
+    if not base:
+        pytest.skip("SPECCAT_TEST_PG_URL is not set (CI sets it through pg_virtualenv)")
+    from sqlalchemy import create_engine, text
+    from sqlalchemy.engine import make_url
+
+    name = f"speccat_robust_{uuid.uuid4().hex[:12]}"
+    admin = create_engine(base, isolation_level="AUTOCOMMIT")
+    with admin.connect() as conn:
+        conn.execute(text(f'CREATE DATABASE "{name}"'))
+    try:
+        yield make_url(base).set(database=name).render_as_string(hide_password=False)
+    finally:
+        with admin.connect() as conn:
+            conn.execute(
+                text(
+                    "SELECT pg_terminate_backend(pid) FROM pg_stat_activity "
+                    "WHERE datname = :n AND pid <> pg_backend_pid()"
+                ),
+                {"n": name},
+            )
+            conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
+        admin.dispose()

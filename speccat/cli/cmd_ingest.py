@@ -11,6 +11,7 @@ from speccat.config import load_settings
 NAME = "ingest"
 HELP = "read every spectrum under the paths, measure and identify its lines, and archive them"
 ORDER = 10
+MAX_NIGHT_CHARS = 100
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -39,12 +40,14 @@ def run(args: argparse.Namespace) -> int:
     from speccat.archive import Archive
     from speccat.cli.common import console
     from speccat.cli.summary import print_ingest_summary
+    from speccat.errors import SpeccatError
     from speccat.pipeline import ingest
 
     if args.jobs is not None and args.jobs < 1:
-        from speccat.errors import SpeccatError
-
         raise SpeccatError("--jobs must be at least 1")
+    if args.night is not None and not 0 < len(args.night.strip()) <= MAX_NIGHT_CHARS:
+        # the archive's night columns hold 100 characters (PostgreSQL enforces it mid-run)
+        raise SpeccatError(f"--night must be 1 to {MAX_NIGHT_CHARS} characters")
     settings = load_settings(
         {
             "archive": args.archive,

@@ -10,18 +10,17 @@ files table's UNIQUE sha256 decides, not a check-then-insert.
 from __future__ import annotations
 
 import json
-import os
 import sqlite3
 import subprocess
 import sys
 import threading
-import uuid
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
 from hostile_inputs import bases
+from robust_archive import fresh_pg_database
 
 SPECCAT = [sys.executable, "-m", "speccat"]
 N_WRITERS = 4
@@ -182,30 +181,7 @@ def test_four_sqlite_writers_and_a_reader(tmp_path: Path) -> None:
 
 @pytest.fixture
 def fresh_pg_url() -> Iterator[str]:
-    """A new, empty database on the test server (dropped afterwards)."""
-    base = os.environ.get("SPECCAT_TEST_PG_URL")
-    if not base:
-        pytest.skip("SPECCAT_TEST_PG_URL is not set (CI sets it through pg_virtualenv)")
-    from sqlalchemy import create_engine, text
-    from sqlalchemy.engine import make_url
-
-    name = f"speccat_robust_{uuid.uuid4().hex[:12]}"
-    admin = create_engine(base, isolation_level="AUTOCOMMIT")
-    with admin.connect() as conn:
-        conn.execute(text(f'CREATE DATABASE "{name}"'))
-    try:
-        yield make_url(base).set(database=name).render_as_string(hide_password=False)
-    finally:
-        with admin.connect() as conn:
-            conn.execute(
-                text(
-                    "SELECT pg_terminate_backend(pid) FROM pg_stat_activity "
-                    "WHERE datname = :n AND pid <> pg_backend_pid()"
-                ),
-                {"n": name},
-            )
-            conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
-        admin.dispose()
+    yield from fresh_pg_database()
 
 
 def _pg_rows(url: str, sql: str) -> list[Any]:

@@ -21,7 +21,8 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from hostile_inputs import HostileInput, generate
+from hostile_inputs import HostileInput, bases, generate
+from robust_archive import fresh_pg_database
 
 SPECCAT = [sys.executable, "-m", "speccat"]
 
@@ -215,3 +216,68 @@ def test_io_read_raises_only_spectrum_read_errors(tmp_path: Path, alarm: None) -
     assert stuck == []
     assert accepted_bad == []
     assert rejected_good == []
+
+
+# --------------------------------------------------------------------------- overlong metadata
+
+
+@pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
+def any_archive(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
+    """A fresh archive URL on each engine (PostgreSQL enforces column lengths, SQLite not)."""
+    if request.param == "sqlite":
+        yield str(tmp_path / "long.sqlite")
+    else:
+        yield from fresh_pg_database()
+
+
+def _stored_paths(url: str) -> set[str]:
+    from sqlalchemy import create_engine, text
+
+    engine = create_engine(url if "://" in url else f"sqlite:///{url}")
+    try:
+        with engine.connect() as conn:
+            return {r[0] for r in conn.execute(text("SELECT path FROM files"))}
+    finally:
+        engine.dispose()
+
+
+@pytest.mark.slow
+def test_overlong_metadata_never_stops_an_ingest(tmp_path: Path, any_archive: str) -> None:
+    """A 300-character OBJECT or TELESCOP, a 100-character BUNIT or SPECSYS: each file is
+    stored or refused on its own, and the valid files after it still go in."""
+    folder = tmp_path / "long"
+    folder.mkdir()
+    for i, (key, length) in enumerate(
+        (("OBJECT", 300), ("TELESCOP", 300), ("BUNIT", 100), ("SPECSYS", 100))
+    ):
+        text = bases(700 + i)["spectrum.csv"].decode()
+        line = next(ln for ln in text.splitlines() if ln.startswith(f"# {key} ="))
+        (folder / f"a_long_{key.lower()}.csv").write_text(
+            text.replace(line, f"# {key} = " + key[0] * length)
+        )
+    valid = []
+    for name, content in bases(710).items():
+        valid.append(folder / f"z_valid_{name}")
+        valid[-1].write_bytes(content)
+    proc = subprocess.run(
+        [*SPECCAT, "--archive", any_archive, "ingest", str(folder), "--json", "--jobs", "1"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert "Traceback" not in proc.stderr
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads(proc.stdout)
+    stored = _stored_paths(any_archive)
+    failed = {f["file"] for f in summary["failures"]}
+    assert {str(p) for p in valid} <= stored
+    odd = {str(p) for p in folder.glob("a_long_*")}
+    assert odd <= stored | failed
+    assert not odd & stored & failed
+    night = subprocess.run(
+        [*SPECCAT, "--archive", any_archive, "ingest", str(valid[0]), "--night", "N" * 150],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert night.returncode == 1 and night.stderr.count("\n") == 1, night.stderr
