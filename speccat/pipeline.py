@@ -15,8 +15,8 @@ import signal
 import stat
 import threading
 import time
-from collections import Counter
-from collections.abc import Callable, Iterable, Iterator, Mapping
+from collections import Counter, deque
+from collections.abc import Callable, Generator, Iterable, Iterator, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
@@ -289,32 +289,60 @@ ProgressFn = Callable[[int, int, str], None]
 def _results(
     paths: list[str], settings: Settings, known: dict[str, float], jobs: int
 ) -> Iterator[FileResult]:
-    """FileResults in completion order; at most a few files per worker in flight (flat memory)."""
+    """FileResults in completion order; at most a few files per worker in flight (flat memory).
+
+    A worker that dies (killed by the kernel for memory, a crash in C code) breaks the pool:
+    the files it left unfinished are then read again one at a time in a fresh worker, so the
+    one that kills a worker is reported as a failure and every other file still goes in.
+    """
     if jobs <= 1 or len(paths) <= 1:
         _init_worker(settings, known)
         for p in paths:
             yield process_file(p)
         return
+    todo = deque(paths)
+    while todo:
+        orphans = deque((yield from _pool_pass(todo, settings, known, jobs, 4 * jobs)))
+        while orphans:  # one in flight at a time: a second death names its file
+            for path in (yield from _pool_pass(orphans, settings, known, 1, 1)):
+                yield _worker_died(path)
+
+
+def _pool_pass(
+    todo: deque[str], settings: Settings, known: dict[str, float], jobs: int, window: int
+) -> Generator[FileResult, None, list[str]]:
+    """Run files from ``todo`` in a process pool until it is empty or the pool breaks;
+    returns the files that were in flight when a worker died."""
     import multiprocessing as mp
+    from concurrent.futures.process import BrokenProcessPool
 
     # forkserver: workers never inherit the writer's open database connections.
     ctx = mp.get_context("forkserver")
-    pending: set[Future[FileResult]] = set()
-    todo = iter(paths)
+    in_flight: dict[Future[FileResult], str] = {}
     with ProcessPoolExecutor(
         jobs, mp_context=ctx, initializer=_init_worker, initargs=(settings, known)
     ) as pool:
-        for p in todo:
-            pending.add(pool.submit(process_file, p))
-            if len(pending) >= 4 * jobs:
-                break
-        while pending:
-            done, pending = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in done:
-                nxt = next(todo, None)
-                if nxt is not None:
-                    pending.add(pool.submit(process_file, nxt))
-                yield fut.result()
+        try:
+            while todo or in_flight:
+                while todo and len(in_flight) < window:
+                    path = todo.popleft()
+                    in_flight[pool.submit(process_file, path)] = path
+                done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
+                for fut in done:
+                    result = fut.result()
+                    del in_flight[fut]
+                    yield result
+        except BrokenProcessPool:
+            return list(in_flight.values())
+    return []
+
+
+def _worker_died(path: str) -> FileResult:
+    try:
+        size, sha = file_digest(path)
+    except OSError:
+        size, sha = 0, ""
+    return FileResult(path, size, sha, error="the worker reading it died (out of memory?)")
 
 
 def ingest(
@@ -338,14 +366,16 @@ def ingest(
     run_id = archive.begin_run(_run_params(settings, paths, night, n_jobs))
     summary = IngestSummary(run_id=run_id, night=night or "", files_found=len(files))
     for path, reason in problems:
-        archive.store_failure(run_id, path, reason)
+        archive.store_failure(run_id, path, reason, night=night)
         summary.failures.append((path, reason))
     todo = []
     for path in files:
         try:
             _, sha = file_digest(path)
         except OSError as exc:
-            archive.store_failure(run_id, path, f"cannot read file ({exc.strerror or exc})")
+            archive.store_failure(
+                run_id, path, f"cannot read file ({exc.strerror or exc})", night=night
+            )
             summary.failures.append((path, f"cannot read file ({exc.strerror or exc})"))
             continue
         if archive.has_sha256(sha):
@@ -358,7 +388,7 @@ def ingest(
     provisional = night or "unlabelled"
     for done, result in enumerate(_results(todo, settings, archive.source_velocities(), n_jobs), 1):
         if result.error is not None:
-            archive.store_failure(run_id, result.path, result.error)
+            archive.store_failure(run_id, result.path, result.error, night=night)
             summary.failures.append((result.path, result.error))
         else:
             t = _earliest_time(result)
@@ -373,7 +403,7 @@ def ingest(
             progress(done, len(todo), result.path)
     if night is None:
         summary.night = night_label(earliest) if earliest is not None else provisional
-        if summary.files_stored:
+        if summary.files_stored or summary.failures:
             archive.relabel_run(run_id, summary.night)
     if summary.sources:
         archive.update_sources(sorted(summary.sources))
