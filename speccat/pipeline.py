@@ -325,14 +325,16 @@ def _pool_pass(
         try:
             while todo or in_flight:
                 while todo and len(in_flight) < window:
-                    path = todo.popleft()
-                    in_flight[pool.submit(process_file, path)] = path
+                    fut = pool.submit(process_file, todo[0])
+                    in_flight[fut] = todo.popleft()
                 done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
                 for fut in done:
                     result = fut.result()
                     del in_flight[fut]
                     yield result
         except BrokenProcessPool:
+            if not in_flight:
+                raise SpeccatError("worker processes cannot be started (out of memory?)") from None
             return list(in_flight.values())
     return []
 

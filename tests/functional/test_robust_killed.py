@@ -12,6 +12,7 @@ file is in.
 
 from __future__ import annotations
 
+import json
 import multiprocessing as mp
 import os
 import signal
@@ -167,3 +168,59 @@ def _count_files(archive: Path) -> int:
             db.close()
     except sqlite3.Error:
         return 0
+
+
+def _children(pid: int) -> list[int]:
+    try:
+        text = Path(f"/proc/{pid}/task/{pid}/children").read_text()
+    except OSError:
+        return []
+    return [int(x) for x in text.split()]
+
+
+def _pool_workers(pid: int) -> list[int]:
+    """The ingest's worker processes: children of its forkserver process."""
+    out = []
+    for child in _children(pid):
+        try:
+            cmdline = Path(f"/proc/{child}/cmdline").read_bytes()
+        except OSError:
+            continue
+        if b"forkserver" in cmdline:
+            out += _children(child)
+    return out
+
+
+@pytest.mark.slow
+def test_a_worker_killed_mid_ingest_loses_no_file(
+    tmp_path: Path, night: tuple[Path, dict[str, Signature], float]
+) -> None:
+    """The kernel's OOM killer (here: SIGKILL) takes one worker: the ingest finishes anyway,
+    exit 0, no traceback, every file stored once, as a clean ingest stores it."""
+    folder, reference, _ = night
+    archive = tmp_path / "worker.sqlite"
+    cmd = [sys.executable, "-m", "speccat", "--archive", str(archive), "ingest", str(folder)]
+    proc = subprocess.Popen(
+        [*cmd, "--jobs", "2", "--json", "--night", "kill-test"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
+    victim = None
+    deadline = time.monotonic() + 240
+    while proc.poll() is None and time.monotonic() < deadline and victim is None:
+        workers = _pool_workers(proc.pid)
+        if workers:
+            victim = workers[0]
+            os.kill(victim, signal.SIGKILL)
+        time.sleep(0.02)
+    stdout, stderr = proc.communicate(timeout=300)
+    assert victim is not None, "the ingest ended before a worker could be killed"
+    assert "Traceback" not in stderr, stderr[-2000:]
+    assert proc.returncode == 0, stderr
+    summary = json.loads(stdout)
+    assert summary["failures"] == []
+    assert summary["files_stored"] == len(reference)
+    assert integrity(archive) == "ok"
+    assert signatures(archive) == reference
