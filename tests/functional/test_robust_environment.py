@@ -232,3 +232,43 @@ def test_postgresql_server_down(command: list[str]) -> None:
     message = one_line_error(cli("--archive", url, *command, timeout=60), 2)
     assert "secret" not in message  # the password never reaches a message
     assert "127.0.0.1" in message
+
+
+# --------------------------------------------------------------------------- not an archive
+
+
+def _sha(path: Path) -> str:
+    import hashlib
+
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_corrupt_or_truncated_archive_gives_exit_2_and_is_left_alone(
+    tmp_path: Path, committed: Path, second_night: Path
+) -> None:
+    noise = tmp_path / "noise.sqlite"
+    noise.write_bytes(os.urandom(50_000))
+    cut = tmp_path / "cut.sqlite"
+    cut.write_bytes(committed.read_bytes()[:100_000])
+    for archive in (noise, cut):
+        before = _sha(archive)
+        for command in (["query", "--format", "json"], ["ingest", str(second_night)]):
+            message = one_line_error(cli("--archive", str(archive), *command), 2)
+            assert "corrupt" in message or "not a speccat archive" in message
+        assert _sha(archive) == before
+
+
+def test_a_foreign_sqlite_file_is_not_touched(tmp_path: Path, second_night: Path) -> None:
+    """Someone's other database given as --archive by mistake: refused, byte-for-byte unchanged
+    (not even switched to WAL journal mode)."""
+    import sqlite3
+
+    other = tmp_path / "telescope_log.sqlite"
+    with sqlite3.connect(other) as db:
+        db.execute("CREATE TABLE log (t TEXT, note TEXT)")
+        db.execute("INSERT INTO log VALUES ('22:00', 'dome open')")
+    db.close()
+    before = _sha(other)
+    message = one_line_error(cli("--archive", str(other), "ingest", str(second_night)), 2)
+    assert "not a speccat archive" in message
+    assert _sha(other) == before
