@@ -229,9 +229,17 @@ def _gather(
         out.intensities.append(y)
         out.rms.append(float(stored.rms))
         out.segments.append(
-            Segment(det_id, sid, str(r["line"]), rest, float(stored.rms), float(r["snr"] or 0.0),
-                    float(r["v_lsr_kms"]), str(r["night"] or ""))
-        )  # fmt: skip
+            Segment(
+                det_id,
+                sid,
+                str(r["line"]),
+                rest,
+                float(stored.rms),
+                float(r["snr"] or 0.0),
+                float(r["v_lsr_kms"]),
+                str(r["night"] or ""),
+            )
+        )
         if out.ra_dec == (None, None):
             out.ra_dec = (stored.ra_deg, stored.dec_deg)
         if stored.obs_time is not None and (out.latest is None or stored.obs_time > out.latest):
@@ -290,8 +298,9 @@ def stack_source(
     got = _gather(archive, records, cat, centre, window_kms)
     if len(got.segments) < 2:
         reasons = "; ".join(sorted({why for _, why in got.skipped}))
-        raise StackError(f"stack needs at least 2 usable segments, got {len(got.segments)} "
-                         f"({reasons})")  # fmt: skip
+        raise StackError(
+            f"stack needs at least 2 usable segments, got {len(got.segments)} ({reasons})"
+        )
     step = channel_kms or max(float(np.median(np.abs(np.diff(v)))) for v in got.velocities)
     smoothed = [
         smooth_to(v, y, s, step)
@@ -299,6 +308,8 @@ def stack_source(
     ]
     vs = [s[0] for s in smoothed]
     overlap = default_grid(vs)
+    lo, hi = max(float(v.min()) for v in vs), min(float(v.max()) for v in vs)
+    overlap = overlap[(overlap >= lo) & (overlap <= hi)]  # rounding at the ends
     grid = overlap if channel_kms is None else np.arange(overlap[0], overlap[-1] + 1e-9, step)
     labels = [f"{s.line}#{s.detection_id}" for s in got.segments]
     result = stack(vs, [s[1] for s in smoothed], [s[2] for s in smoothed], grid, labels)
@@ -312,9 +323,16 @@ def stack_source(
     ident = identify(spectrum, m, cat, known_velocities={outcome_source: centre})
     night = max(s.night for s in got.segments)
     outcome = StackOutcome(
-        outcome_source, species, ref.line, float(window_kms), result, ident,
-        tuple(got.segments), tuple(got.skipped), night,
-    )  # fmt: skip
+        outcome_source,
+        species,
+        ref.line,
+        float(window_kms),
+        result,
+        ident,
+        tuple(got.segments),
+        tuple(got.skipped),
+        night,
+    )
     path = outcome.label()
     spectrum = replace(spectrum, origin=replace(spectrum.origin, path=path))
     return replace(outcome, result=replace(ident, spectrum=spectrum))

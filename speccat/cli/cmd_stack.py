@@ -41,13 +41,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--dn", type=int, metavar="N", help="only lines with this Δn (default 1 without --line)"
     )
     parser.add_argument(
-        "--window", type=float, default=300.0, metavar="KMS",
+        "--window",
+        type=float,
+        default=300.0,
+        metavar="KMS",
         help="half-width of each segment around the source velocity, km/s (default 300)",
-    )  # fmt: skip
+    )
     parser.add_argument(
-        "--channel", type=float, metavar="KMS",
+        "--channel",
+        type=float,
+        metavar="KMS",
         help="channel width of the stack, km/s (default: the coarsest segment's)",
-    )  # fmt: skip
+    )
     parser.add_argument(
         "--store", action="store_true", help="store the stacked spectrum in the archive"
     )
@@ -92,17 +97,7 @@ def summary(outcome: Any, stored: bool | None) -> dict[str, Any]:
         "rest_freq_mhz": outcome.result.spectrum.rest_freq_hz / 1e6,
         "file": outcome.label(),
         "n_segments": len(outcome.segments),
-        "segments": [
-            {
-                "detection_id": s.detection_id,
-                "spectrum_id": s.spectrum_id,
-                "line": s.line,
-                "rms": s.rms,
-                "snr": s.snr,
-                "v_lsr_kms": s.v_lsr_kms,
-            }
-            for s in outcome.segments
-        ],  # fmt: skip
+        "segments": [_segment(s) for s in outcome.segments],
         "skipped": [{"detection_id": d, "reason": why} for d, why in outcome.skipped],
         "rms": outcome.result.measurement.rms,
         "best_single_snr": best,
@@ -132,10 +127,15 @@ def run(args: argparse.Namespace) -> int:
     settings = load_settings({"archive": args.archive})
     with Archive.open(settings.archive, readonly=not args.store) as archive:
         outcome = stack_source(
-            archive, source, species=args.species, line_glob=args.line, dn=dn,
-            window_kms=args.window, channel_kms=args.channel,
+            archive,
+            source,
+            species=args.species,
+            line_glob=args.line,
+            dn=dn,
+            window_kms=args.window,
+            channel_kms=args.channel,
             detect_sigma=settings.detect_sigma,
-        )  # fmt: skip
+        )
         stored = store_stack(archive, outcome, args.night) if args.store else None
     doc = summary(outcome, stored)
     if args.format == "json":

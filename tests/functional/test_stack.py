@@ -26,9 +26,17 @@ FWHM_KMS = 25.0
 LINES = ("H109a", "H110a", "H91a")
 
 
-def _spectrum(line: str, when: datetime, seed: int, *, peak: float = 0.1,
-              noise: float = 0.01, dv_kms: float = 1.0, unit: str = "K",
-              source: str = "Lumen-7") -> Spectrum:  # fmt: skip
+def _spectrum(
+    line: str,
+    when: datetime,
+    seed: int,
+    *,
+    peak: float = 0.1,
+    noise: float = 0.01,
+    dv_kms: float = 1.0,
+    unit: str = "K",
+    source: str = "Lumen-7",
+) -> Spectrum:
     """Channels evenly spaced in radio velocity (dv_kms) around V0, a Gaussian line at V0 on a
     sloping continuum, Gaussian noise of rms ``noise``; LSRK frame."""
     rest = builtin().by_name(line).rest_freq_hz
@@ -36,12 +44,23 @@ def _spectrum(line: str, when: datetime, seed: int, *, peak: float = 0.1,
     freq = rest * (1.0 - v / C_KMS)
     rng = np.random.default_rng(seed)
     sigma = FWHM_KMS / math.sqrt(8 * math.log(2))
-    y = (0.3 + 0.02 * (v - V0_KMS) / 400.0 + peak * np.exp(-0.5 * ((v - V0_KMS) / sigma) ** 2)
-         + rng.normal(0.0, noise, v.size))  # fmt: skip
+    y = (
+        0.3
+        + 0.02 * (v - V0_KMS) / 400.0
+        + peak * np.exp(-0.5 * ((v - V0_KMS) / sigma) ** 2)
+        + rng.normal(0.0, noise, v.size)
+    )
     return Spectrum(
-        freq_hz=freq, intensity={"I": y}, intensity_unit=unit, source=source,
-        origin=Origin("synthetic"), ra_deg=281.5, dec_deg=-3.9, obs_time=when, specsys="LSRK",
-    )  # fmt: skip
+        freq_hz=freq,
+        intensity={"I": y},
+        intensity_unit=unit,
+        source=source,
+        origin=Origin("synthetic"),
+        ra_deg=281.5,
+        dec_deg=-3.9,
+        obs_time=when,
+        specsys="LSRK",
+    )
 
 
 def _ingest(db: Path, folder: Path, capsys: pytest.CaptureFixture[str]) -> None:
