@@ -286,6 +286,8 @@ def stack_source(
         raise StackError(f"--window must be a positive number of km/s, got {window_kms}")
     if channel_kms is not None and not (np.isfinite(channel_kms) and channel_kms > 0):
         raise StackError(f"--channel must be a positive number of km/s, got {channel_kms}")
+    if not species.strip() or any(ch in species for ch in "*?[]"):
+        raise StackError(f"--species takes one element name such as H or He, got {species!r}")
     cat = catalogue or builtin()
     records = select_records(archive, source, species, line_glob, dn, cat)
     what = line_glob or (f"dn={dn}" if dn else "any")
@@ -360,7 +362,8 @@ def stack_file_result(outcome: StackOutcome) -> FileResult:
 
 
 def store_stack(archive: Archive, outcome: StackOutcome, night: str | None = None) -> bool:
-    """Store the stack as its own file entry (night: ``night`` or the latest input night).
+    """Store the stack as its own file entry (night: ``night``, else the latest input night,
+    i.e. the greatest label, which for the default ISO-date labels is the latest date).
     Returns False when the same stack is already archived (nothing written)."""
     label = night or outcome.night or "unlabelled"
     file_result = stack_file_result(outcome)

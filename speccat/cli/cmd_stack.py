@@ -99,7 +99,7 @@ def summary(outcome: Any, stored: bool | None) -> dict[str, Any]:
         "n_segments": len(outcome.segments),
         "segments": [_segment(s) for s in outcome.segments],
         "skipped": [{"detection_id": d, "reason": why} for d, why in outcome.skipped],
-        "rms": outcome.result.measurement.rms,
+        "rms": _clean(float(outcome.result.measurement.rms)),
         "best_single_snr": best,
         "stack_snr": stack_snr,
         "snr_gain": None if stack_snr is None or best <= 0 else stack_snr / best,

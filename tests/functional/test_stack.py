@@ -131,6 +131,11 @@ def test_store_makes_query_find_the_stack_once(
     ]
     final = _run_json(archive, capsys, "query", "--source", "Lumen-7", "--limit", "100")
     assert isinstance(final, list) and len(final) == len(after)
+    out = archive.parent / "stack.json"
+    assert main(["--archive", str(archive), "export", "--source", "Lumen-7", "-o", str(out)]) == 0
+    capsys.readouterr()
+    rows = json.loads(out.read_text())
+    assert sum(1 for r in rows if r["file"] == doc["file"]) == len(doc["detections"])
 
 
 def test_table_output_and_refusals(archive: Path, capsys: pytest.CaptureFixture[str]) -> None:

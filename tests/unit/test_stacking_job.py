@@ -92,6 +92,13 @@ def test_mixed_channel_widths_use_the_coarsest_grid(tmp_path: Path) -> None:
     assert np.median(np.diff(out.stack.v_kms)) == pytest.approx(1.0, rel=1e-6)
     # fine segment smoothed to σ/√2, then (2/σ² + 1/σ²)^-1/2 = σ/√3 (inverse-variance mean)
     assert out.result.measurement.rms == pytest.approx(NOISE / math.sqrt(3), rel=0.15)
+    with Archive.open(str(tmp_path / "a.sqlite")) as archive:
+        wide = stack_source(archive, "Quill-3", channel_kms=2.0)
+        with pytest.raises(StackError, match="one element"):
+            stack_source(archive, "Quill-3", species="H*")
+    assert np.median(np.diff(wide.stack.v_kms)) == pytest.approx(2.0, rel=1e-6)
+    # both segments smoothed to 2 km/s: σ/2 and σ/√2, combined (4/σ² + 2/σ²)^-1/2 = σ/√6
+    assert wide.result.measurement.rms == pytest.approx(NOISE / math.sqrt(6), rel=0.15)
 
 
 def test_selection_rules_and_refusals(tmp_path: Path) -> None:
