@@ -239,10 +239,14 @@ def _via_wcs(keys: Keys, i: int, n: int, ctype: str) -> np.ndarray:
 def stokes_labels(keys: Keys, i: int, n: int) -> list[str]:
     """Product labels along a STOKES axis (codes CRVAL + (p - CRPIX) CDELT, p = 1..n)."""
     crval = keys.number(f"CRVAL{i}")
-    cdelt = keys.number(f"CDELT{i}") or 1.0
-    crpix = keys.number(f"CRPIX{i}") or 1.0
+    cdelt = keys.number(f"CDELT{i}")
+    crpix = keys.number(f"CRPIX{i}")
     if crval is None:
         raise ReadProblem(f"STOKES axis {i} has no CRVAL{i}")
+    if cdelt == 0.0:
+        raise ReadProblem(f"CDELT{i} is zero")
+    cdelt = 1.0 if cdelt is None else cdelt
+    crpix = 1.0 if crpix is None else crpix
     labels = []
     for p in range(1, n + 1):
         value = crval + (p - crpix) * cdelt

@@ -143,14 +143,33 @@ def layout(raw: bytes) -> list[tuple[str, dict[str, Any], int]]:
             raise Unsupported("not a plain primary HDU")
         if out and xtension not in ("IMAGE", "BINTABLE"):
             raise Unsupported(f"extension {xtension!r}")
-        if xtension == "BINTABLE" and (keys.get("PCOUNT") or 0) != 0:
-            raise Unsupported("binary table with a heap")
+        if xtension in ("IMAGE", "BINTABLE"):
+            check_extension(keys, xtension)
         size = data_size(keys)
         if start + size > len(raw):
             raise ReadProblem("file truncated")
+        if xtension == "BINTABLE" and keys.get("PCOUNT", 0) != 0:
+            raise Unsupported("binary table with a heap")
         out.append(("table" if xtension == "BINTABLE" else "image", keys, start))
         pos = start + -(-size // BLOCK) * BLOCK
     return out
+
+
+def check_extension(keys: dict[str, Any], xtension: str) -> None:
+    """Mandatory keywords of an IMAGE or BINTABLE extension within the FITS standard 4.0
+    limits (§7.1: PCOUNT = 0, GCOUNT = 1; §7.3: PCOUNT >= 0, GCOUNT = 1, 0 <= TFIELDS <= 999),
+    checked here so no hostile value reaches the astropy fallback. Raises ReadProblem."""
+    pcount, gcount = keys.get("PCOUNT", 0), keys.get("GCOUNT", 1)
+    if gcount != 1 or isinstance(gcount, bool):
+        raise ReadProblem(f"{xtension} extension has GCOUNT = {gcount!r} (must be 1)")
+    if not isinstance(pcount, int) or isinstance(pcount, bool) or pcount < 0:
+        raise ReadProblem(f"{xtension} extension has PCOUNT = {pcount!r} (must be >= 0)")
+    if xtension == "IMAGE" and pcount != 0:
+        raise ReadProblem(f"IMAGE extension has PCOUNT = {pcount} (must be 0)")
+    if xtension == "BINTABLE":
+        tfields = keys.get("TFIELDS")
+        if not isinstance(tfields, int) or isinstance(tfields, bool) or not 0 <= tfields <= 999:
+            raise ReadProblem(f"BINTABLE has TFIELDS = {tfields!r} (must be 0..999)")
 
 
 def image(raw: bytes, keys: dict[str, Any], start: int) -> np.ndarray | None:

@@ -29,14 +29,7 @@ SPECCAT = [sys.executable, "-m", "speccat"]
 #: Inputs that exposed a bug in another module (folder/name -> where and what). The generic
 #: tests below leave them out; ``test_known_hostile_case_is_refused_quickly`` holds each one
 #: to the same standard, marked xfail(strict) until its owner fixes it.
-KNOWN_BUGS = {
-    "named4d/stokes_repeat.fits": "speccat/io/axis.py stokes_labels: CDELT4 = 0 on a STOKES "
-    "axis is read as 1, so Stokes V is silently labelled Q",
-    "card/table_GCOUNT_2.fits": "speccat/io: a BINTABLE with GCOUNT = -1 goes to the astropy "
-    "fallback, whose HDU scan loops forever",
-    "card/table_TFIELDS_5.fits": "speccat/io: TFIELDS = 999999999 goes to the astropy fallback, "
-    "which spends hours setting up columns",
-}
+KNOWN_BUGS: dict[str, str] = {}
 
 
 def known_bug(item: HostileInput) -> bool:
