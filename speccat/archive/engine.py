@@ -51,10 +51,31 @@ def masked(target: str) -> str:
         return "<unparsable URL>"
 
 
+def _read_only_uri(path: Path) -> str:
+    """SQLite URI filename for reading. In a folder nobody can write to, no writer can exist
+    (it would need a -wal or -journal file there) and a reader cannot create the -shm file WAL
+    needs, so the file is opened ``immutable=1`` (no locks, no -shm) unless a -wal file left
+    beside it holds committed pages. See sqlite.org/uri.html, "immutable"."""
+    resolved = path.resolve()
+    uri = f"file:{quote(str(resolved))}?mode=ro"
+    wal = resolved.with_name(resolved.name + "-wal")
+    if not os.access(resolved.parent, os.W_OK) and not wal.exists():
+        uri += "&immutable=1"
+    return uri
+
+
+def _is_ours_or_empty(cur: sqlite3.Cursor) -> bool:
+    """True for a new/empty database or a speccat archive (it has ``schema_version``): only
+    those may be switched to WAL; someone else's database is left untouched for the schema
+    check to refuse."""
+    names = {r[0] for r in cur.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    return "schema_version" in names or not names - {"sqlite_sequence"}
+
+
 def _sqlite_engine(path: Path, readonly: bool, immediate: bool) -> Engine:
     def connect() -> sqlite3.Connection:
         if readonly:
-            uri = f"file:{quote(str(path.resolve()))}?mode=ro"
+            uri = _read_only_uri(path)
             conn = sqlite3.connect(uri, uri=True, check_same_thread=False, timeout=30)
         else:
             conn = sqlite3.connect(str(path), check_same_thread=False, timeout=30)
@@ -67,7 +88,7 @@ def _sqlite_engine(path: Path, readonly: bool, immediate: bool) -> Engine:
     def _pragmas(dbapi_conn: Any, _record: Any) -> None:
         cur = dbapi_conn.cursor()
         cur.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
-        if not readonly:
+        if not readonly and _is_ours_or_empty(cur):
             cur.execute("PRAGMA journal_mode = WAL")
         cur.execute("PRAGMA synchronous = NORMAL")
         cur.execute("PRAGMA foreign_keys = ON")

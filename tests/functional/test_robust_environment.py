@@ -105,12 +105,6 @@ def test_read_only_archive_file(tmp_path: Path, committed: Path, second_night: P
     assert table_digests(archive) == before
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="speccat/archive/engine.py: a read-only SQLite connection (mode=ro) to a WAL archive "
-    "cannot create its -shm file in a read-only folder ('unable to open database file'); open "
-    "with immutable=1 when the folder is not writable and no -wal file exists",
-)
 def test_read_only_folder(tmp_path: Path, committed: Path, second_night: Path) -> None:
     folder = tmp_path / "shelf"
     folder.mkdir()
@@ -264,11 +258,6 @@ def test_corrupt_or_truncated_archive_gives_exit_2_and_is_left_alone(
         assert _sha(archive) == before
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="speccat/archive/engine.py _pragmas: PRAGMA journal_mode = WAL runs on connect, before "
-    "the schema check refuses the file, so a foreign database is switched to WAL",
-)
 def test_a_foreign_sqlite_file_is_not_touched(tmp_path: Path, second_night: Path) -> None:
     """Someone's other database given as --archive by mistake: refused, byte-for-byte unchanged
     (not even switched to WAL journal mode)."""
