@@ -11,7 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from speccat.reduce.detect import Seed, filter_bank, find_seeds
-from speccat.reduce.fit import GroupFit, fit_components, model
+from speccat.reduce.fit import GroupFit, fit_components, model, over_budget
 from speccat.reduce.noise import correlation_factor
 from speccat.reduce.settings import ReduceSettings
 
@@ -94,16 +94,20 @@ def _fit_all(
     n = resid.size
     chan = np.arange(n, dtype=float)
     groups = []
-    for rows in group_rows(params, s.max_components):
-        p0, others = params[rows], np.delete(params, rows, axis=0)
+    rows_list = group_rows(params, s.max_components)
+    total = model(chan, params, s.profile) if len(rows_list) > 1 else np.zeros(n)
+    for rows in rows_list:
+        p0 = params[rows]
         lo, hi = window(p0, n)
         sel = valid[lo:hi]
         x = chan[lo:hi][sel]
         if x.size < p0.size + 1:
             continue
-        y = resid[lo:hi][sel] - model(x, others, s.profile)
+        others = total[lo:hi][sel] - model(x, p0, s.profile) if len(rows_list) > 1 else 0.0
+        y = resid[lo:hi][sel] - others
         fit = _simplest(x, y, p0, noise, s.detect_sigma)
-        groups.append(Group(fit.params, fit, lo, hi))
+        if np.all(np.isfinite(fit.params)) and np.all(np.isfinite(fit.cov)):
+            groups.append(Group(fit.params, fit, lo, hi))
     return groups
 
 
@@ -121,7 +125,7 @@ def _simplest(
     profile = "gaussian" if p0.shape[1] == 3 else "voigt"
     fit = fit_components(x, y, p0, profile)
     span = float(x[-1] - x[0]) if x.size > 1 else 1.0
-    while fit.params.shape[0] > 1:
+    while fit.params.shape[0] > 1 and not over_budget():
         p = fit.params
         wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
         bad = (
@@ -167,6 +171,8 @@ def fit_groups(
         params = fitted[keep]
         if keep.all():
             return groups
+        if over_budget():
+            return [g for g in groups if _keep(g.params, noise, settings, n, profile).all()]
     return _fit_all(resid, valid, params, noise, settings)
 
 
@@ -223,6 +229,8 @@ def detect_and_fit(
         groups = fit_groups(resid, valid, params, noise, settings, profile)
         params = stack(groups, params.shape[1])
     for _ in range(settings.max_rounds):
+        if over_budget():
+            break
         left = np.where(valid, resid, 0.0)
         for p in params:  # subtract each component over its own window only
             lo, hi = window(p[None, :], n)

@@ -11,6 +11,7 @@ Olivero & Longbothum (1977, JQSRT 17, 233) approximation, good to 0.02 %.
 
 from __future__ import annotations
 
+import contextvars
 import math
 import warnings
 from collections.abc import Callable
@@ -22,6 +23,21 @@ import scipy.special
 
 FWHM_PER_SIGMA = float(2.0 * np.sqrt(2.0 * np.log(2.0)))
 SQRT2PI = float(np.sqrt(2.0 * np.pi))
+
+#: Fitting work done in the current ``measure`` call, in points x parameters (+5000 overhead)
+#: per evaluation;
+#: ``measure`` sets it to [0] and the detection rounds stop adding work past WORK_BUDGET, so a
+#: pathological spectrum (noise-free, heavy-tailed, ...) cannot take minutes.
+WORK: contextvars.ContextVar[list[float] | None] = contextvars.ContextVar(
+    "speccat_reduce_work", default=None
+)
+WORK_BUDGET = 1.0e8
+
+
+def over_budget() -> bool:
+    """True when the current ``measure`` call has spent its fitting budget."""
+    work = WORK.get()
+    return work is not None and work[0] > WORK_BUDGET
 
 
 @dataclass(frozen=True)
@@ -154,25 +170,34 @@ def fit_components(
     start = p0.copy()
     start[:, 1] -= x0
     xs = x - x0
+    calls = [0]
     if profile == "gaussian":
-        resid, jac = _gauss_funcs(xs, y, k)
+        plain_resid, jac = _gauss_funcs(xs, y, k)
     else:
 
-        def resid(flat: np.ndarray) -> np.ndarray:
+        def plain_resid(flat: np.ndarray) -> np.ndarray:
             return model(xs, flat.reshape(k, npar), profile) - y
 
         def jac(flat: np.ndarray) -> np.ndarray:
             return jacobian(xs, flat.reshape(k, npar), profile).T
+
+    def resid(flat: np.ndarray) -> np.ndarray:
+        calls[0] += 1
+        return plain_resid(flat)
 
     with np.errstate(all="ignore"):
         with warnings.catch_warnings():  # ier says whether it converged; no warning wanted
             warnings.simplefilter("ignore", RuntimeWarning)
             sol, ier = scipy.optimize.leastsq(
                 resid, start.ravel(), Dfun=jac, col_deriv=True, ftol=1e-9, xtol=1e-9,
-                maxfev=maxfev if profile == "gaussian" else 3 * maxfev,
+                maxfev=_budget(maxfev, x.size, p0.size, profile),
             )  # fmt: skip
         r = resid(sol)
         jm = jac(sol)
+    work = WORK.get()
+    if work is not None:
+        per_call = x.size * p0.size * (1.0 if profile == "gaussian" else 5.0) + 5000.0
+        work[0] += calls[0] * per_call  # + a constant for the Python overhead of each call
     rss = float(np.dot(r, r))
     dof = max(x.size - sol.size, 1)
     cov = _inverse(jm @ jm.T) * (rss / dof)
@@ -180,6 +205,14 @@ def fit_components(
     params[:, 1] += x0
     ok = bool(ier in (1, 2, 3, 4) and np.all(np.isfinite(params)))
     return GroupFit(params, cov, rss, dof, profile, ok)
+
+
+def _budget(maxfev: int, m: int, npar: int, profile: str) -> int:
+    """Evaluation cap: ``maxfev`` (x2 for Voigt) but at most ~4e6/(points x parameters), at
+    least 40, so that a huge joint fit on pathological data cannot take minutes."""
+    base = maxfev if profile == "gaussian" else 2 * maxfev
+    cost = 4.0e6 / max(m * npar, 1) / (1.0 if profile == "gaussian" else 5.0)
+    return int(max(40, min(base, cost)))
 
 
 def _inverse(matrix: np.ndarray) -> np.ndarray:
@@ -204,7 +237,8 @@ def _derived(p: np.ndarray, profile: str) -> np.ndarray:
     if profile == "gaussian":
         s = np.exp(p[2])
         return np.array([p[0], p[1], FWHM_PER_SIGMA * s, SQRT2PI * p[0] * s, 0.0])
-    sig, gam = np.exp(p[2]), np.exp(p[3])
+    sig = float(np.exp(min(max(p[2], -12.0), 30.0)))
+    gam = float(np.exp(min(max(p[3], -30.0), 30.0)))
     peak = p[0] * scipy.special.wofz(1j * gam / (sig * np.sqrt(2.0))).real / (sig * SQRT2PI)
     fwhm = float(voigt_fwhm(FWHM_PER_SIGMA * sig, 2.0 * gam))
     return np.array([peak, p[1], fwhm, p[0], 2.0 * gam])

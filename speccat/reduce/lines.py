@@ -36,6 +36,7 @@ def assemble(
     everything = np.concatenate([g.params for g in groups]) if groups else np.zeros((0, 3))
     profile = s.profile
     data = np.where(valid, resid, np.nan)
+    total = model(chan, everything, profile)  # once: k x n, not k^2 x window
     out: list[LineFit] = []
     for index, group in enumerate(groups):
         comps = components(group.fit)
@@ -46,7 +47,7 @@ def assemble(
         dominant = max(comps, key=lambda c: abs(c.peak))
         sign = 1.0 if dominant.peak >= 0 else -1.0
         x = chan[group.lo : group.hi]
-        others = model(x, everything, profile) - model(x, group.params, profile)
+        others = total[group.lo : group.hi] - model(x, group.params, profile)
         prof = sign * (data[group.lo : group.hi] - others)
         top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
         widths = [
@@ -57,7 +58,7 @@ def assemble(
             lo, hi = _window(comp, n, s.sum_window_fwhm)
             xs = chan[lo:hi]
             own = model(xs, group.params[i : i + 1], profile)
-            isolated = data[lo:hi] - (model(xs, everything, profile) - own)
+            isolated = data[lo:hi] - (total[lo:hi] - own)
             if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
                 comp = _unresolved(comp, isolated, lo, noise)
             flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)

@@ -10,7 +10,7 @@ from speccat.model import BaselineModel, LineFit, Measurement
 from speccat.reduce.baseline import BaselineFit, dilate_runs, fit_baseline, intervals_mask
 from speccat.reduce.detect import kernel_sigmas
 from speccat.reduce.engine import Noise, detect_and_fit, reach_sigma
-from speccat.reduce.fit import FWHM_PER_SIGMA, model
+from speccat.reduce.fit import FWHM_PER_SIGMA, WORK, model
 from speccat.reduce.lines import assemble
 from speccat.reduce.noise import autocorrelation, robust_rms
 from speccat.reduce.settings import ReduceError, ReduceSettings
@@ -126,6 +126,14 @@ def measure(
     """
     s = settings if settings is not None else ReduceSettings()
     freq, y = _validate(freq_hz, intensity)
+    token = WORK.set([0.0])
+    try:
+        return _measure(freq, y, s, stokes)
+    finally:
+        WORK.reset(token)
+
+
+def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) -> Measurement:
     n = y.size
     finite = np.isfinite(y)
     yv = np.where(finite, y, 0.0)

@@ -233,3 +233,14 @@ def test_awkward_inputs_measure_cleanly(rng: np.random.Generator, kind: str) -> 
     if kind == "quantised":
         # rounding to integers adds 1/12 to the variance (Sheppard's correction, common practice)
         assert m.rms == pytest.approx(np.sqrt(1 + 1 / 12), rel=0.06)
+
+
+def test_heavy_tailed_noise_is_bounded_and_work_counter_reset(rng: np.random.Generator) -> None:
+    """Cauchy noise: every spike is 'significant'; the per-call work budget keeps it bounded."""
+    from speccat.reduce.fit import WORK
+
+    chan, freq = _axis(1024)
+    m = measure(freq, rng.standard_cauchy(chan.size), ReduceSettings(max_lines=20))
+    assert len(m.lines) <= 20
+    assert all(np.isfinite(ln.center_hz) and np.isfinite(ln.peak) for ln in m.lines)
+    assert WORK.get() is None  # measure() leaves no state behind
