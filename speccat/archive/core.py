@@ -32,6 +32,7 @@ from speccat.archive.schema import (
     MIGRATIONS,
     SCHEMA_VERSION,
     candidates,
+    clip_strings,
     detections,
     failures,
     files,
@@ -44,6 +45,10 @@ from speccat.archive.schema import (
 )
 from speccat.errors import ArchiveError
 from speccat.model import Detection, FileResult, SpectrumResult
+
+#: Spectrum flag: a header string (source, telescope, unit...) was longer than its column and
+#: was cut to fit.
+CLIPPED_FLAG = "metadata-clipped"
 
 
 def utcnow() -> datetime:
@@ -182,12 +187,13 @@ class Archive(QueryMixin):
         except (KeyError, OSError):
             user = "unknown"
         row = {
-            "user": user[:200],
-            "host": socket.gethostname()[:200],
+            "user": user,
+            "host": socket.gethostname(),
             "started_utc": utcnow(),
             "speccat_version": __version__,
             "parameters": json.dumps(dict(params), sort_keys=True, default=str),
         }
+        clip_strings(runs, row)
         with self._write() as conn:
             return int(conn.execute(insert(runs).values(row).returning(runs.c.id)).scalar_one())
 
@@ -220,7 +226,9 @@ class Archive(QueryMixin):
         """Record an unreadable file (for ``report``); nothing else of it is stored."""
         with self._write() as conn:
             conn.execute(
-                insert(failures).values(run_id=run_id, path=str(path), reason=reason, night=night)
+                insert(failures).values(
+                    _clipped(failures, run_id=run_id, path=str(path), reason=reason, night=night)
+                )
             )
 
     def has_sha256(self, sha256: str) -> bool:
@@ -242,6 +250,7 @@ class Archive(QueryMixin):
             "run_id": run_id,
             "night": night,
         }
+        clip_strings(files, file_row)
         stmt = (
             self._insert(files)
             .values(file_row)
@@ -277,7 +286,7 @@ class Archive(QueryMixin):
         det_objs: list[Detection] = []
         for sid, res, srow in zip(spectrum_ids, results, rows, strict=True):
             for det in res.detections:
-                det_rows.append(_detection_row(int(sid), det, srow))
+                det_rows.append(_clipped(detections, **_detection_row(int(sid), det, srow)))
                 det_objs.append(det)
         if not det_rows:
             return
@@ -297,6 +306,8 @@ class Archive(QueryMixin):
             for did, det in zip(det_ids, det_objs, strict=True)
             for rank, c in enumerate(det.candidates, start=1)
         ]
+        for row in cand_rows:
+            clip_strings(candidates, row)
         if cand_rows:
             conn.execute(insert(candidates), cand_rows)
 
@@ -358,16 +369,22 @@ class Archive(QueryMixin):
             return {str(n): float(v) for n, v in conn.execute(stmt)}
 
 
+def _clipped(table: Any, **row: Any) -> dict[str, Any]:
+    clip_strings(table, row)
+    return row
+
+
 def _line_rows(catalogue_lines: Iterable[Any]) -> list[dict[str, Any]]:
     return [
-        {
-            "name": ln.name,
-            "species": ln.species,
-            "transition": ln.transition,
-            "rest_freq_hz": float(ln.rest_freq_hz),
-            "line_class": getattr(ln, "line_class", None),
-            "reference": getattr(ln, "reference", ""),
-        }
+        _clipped(
+            lines,
+            name=ln.name,
+            species=ln.species,
+            transition=ln.transition,
+            rest_freq_hz=float(ln.rest_freq_hz),
+            line_class=getattr(ln, "line_class", None),
+            reference=getattr(ln, "reference", ""),
+        )
         for ln in catalogue_lines
     ]
 
@@ -383,7 +400,7 @@ def _joined(values: Iterable[str]) -> str:
 def _spectrum_row(file_id: int, res: SpectrumResult, night: str) -> dict[str, Any]:
     s, m = res.spectrum, res.measurement
     base = m.baseline
-    return {
+    row = {
         "file_id": file_id,
         "hdu": s.origin.hdu,
         "row": s.origin.row,
@@ -422,6 +439,9 @@ def _spectrum_row(file_id: int, res: SpectrumResult, night: str) -> dict[str, An
         "flags": _joined(m.flags),
         "meta": json.dumps(dict(s.meta), sort_keys=True, default=str),
     }
+    if clip_strings(spectra, row):
+        row["flags"] = _joined((*m.flags, CLIPPED_FLAG))
+    return row
 
 
 def _detection_row(spectrum_id: int, det: Detection, srow: Mapping[str, Any]) -> dict[str, Any]:

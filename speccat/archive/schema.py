@@ -9,7 +9,9 @@ Detections carry the spectrum's source/night/obs_time and the primary identifica
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, MutableMapping
+from functools import cache
+from typing import Any
 
 from sqlalchemy import (
     BigInteger,
@@ -249,3 +251,27 @@ def _v1_create(conn: Connection) -> None:
 #: Append new functions; never edit a released one.
 MIGRATIONS: list[Callable[[Connection], None]] = [_v1_create]
 SCHEMA_VERSION = len(MIGRATIONS)
+
+
+@cache
+def string_lengths(table_name: str) -> dict[str, int]:
+    """Column name -> maximum length of every ``String(n)`` column of a table."""
+    table = metadata.tables[table_name]
+    return {
+        c.name: c.type.length
+        for c in table.columns
+        if isinstance(c.type, String) and c.type.length is not None
+    }
+
+
+def clip_strings(table: Table, row: MutableMapping[str, Any]) -> bool:
+    """Cut, in place, every string longer than its ``String(n)`` column to n characters
+    (PostgreSQL refuses an over-long value and with it the whole transaction; SQLite would
+    keep it). Returns True when anything was cut."""
+    clipped = False
+    for name, length in string_lengths(table.name).items():
+        value = row.get(name)
+        if isinstance(value, str) and len(value) > length:
+            row[name] = value[:length]
+            clipped = True
+    return clipped

@@ -256,19 +256,10 @@ def test_known_hostile_case_is_refused_quickly(tmp_path: Path, alarm: None, name
 # --------------------------------------------------------------------------- overlong metadata
 
 
-PG_CLIPPING = (
-    "speccat/archive/core.py _spectrum_row: strings longer than their column (intensity_unit 40, "
-    "source/telescope 200) make PostgreSQL abort the whole ingest; clip them"
-)
-
-
 @pytest.fixture(
     params=[
         "sqlite",
-        pytest.param(
-            "postgresql",
-            marks=[pytest.mark.postgres, pytest.mark.xfail(strict=True, reason=PG_CLIPPING)],
-        ),
+        pytest.param("postgresql", marks=pytest.mark.postgres),
     ]
 )
 def any_archive(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
