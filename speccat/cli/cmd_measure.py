@@ -99,18 +99,25 @@ def spectrum_record(res: SpectrumResult) -> dict[str, Any]:
     }
 
 
+def _pm(value: float | None, err: float | None) -> str:
+    """``value ± err`` with the value rounded to the error's second significant digit."""
+    if value is None:
+        return ""
+    if err is None or not math.isfinite(err) or err <= 0:
+        return f"{value:.4g}"
+    decimals = max(0, 1 - math.floor(math.log10(err)))
+    if decimals > 6:
+        return f"{value:.3g}±{err:.1g}"
+    return f"{value:.{decimals}f}±{err:.{decimals}f}"
+
+
 def _print_table(records: list[dict[str, Any]]) -> None:
     from rich.table import Table
 
     from speccat.cli.common import console, format_cell
 
     out = console()
-
-    def pm(value: Any, err: Any, fmt: str) -> str:
-        if value is None:
-            return ""
-        return f"{value:{fmt}} ± {err:{fmt}}" if err is not None else f"{value:{fmt}}"
-
+    wide = out.width >= 120
     for r in records:
         where = (
             r["file"]
@@ -128,38 +135,48 @@ def _print_table(records: list[dict[str, Any]]) -> None:
         if not r["lines"]:
             out.print("  no lines above the detection threshold\n")
             continue
-        t = Table(show_edge=False, pad_edge=False)
-        for col in (
-            "line",
-            "v_LSR km/s",
-            "peak",
-            "FWHM km/s",
-            "integral ·km/s",
-            "S/N",
-            "score",
-            "runner-up",
-            "flags",
-        ):
-            t.add_column(col, overflow="fold")
+        unit = r["intensity_unit"] or "intensity"
+        t = Table(show_edge=False, pad_edge=False, box=None, header_style="bold")
+        t.add_column("line (? = MHz)", no_wrap=True)
+        if wide:
+            t.add_column("transition", no_wrap=True)
+        for col in ("v_LSR km/s", "FWHM km/s", f"peak {unit}", f"∫ {unit}·km/s"):
+            t.add_column(col, justify="right", no_wrap=True)
+        t.add_column("S/N", justify="right", no_wrap=True, min_width=5)
+        t.add_column("score", justify="right", no_wrap=True, min_width=5)
+        if wide:
+            t.add_column("runner-up", no_wrap=True)
+        if wide:
+            t.add_column("flags and field", overflow="fold")
+        notes = []
         for ln in r["lines"]:
-            name = ln["line"] or f"? {ln['obs_freq_mhz']:.4f} MHz"
-            if ln["transition"]:
-                name += f" ({ln['transition']})"
+            name = ln["line"] or f"?{ln['obs_freq_mhz']:.3f}"
             extra = list(ln["flags"])
             if ln["b_los_ug"] is not None:
-                extra.append(f"B_los {ln['b_los_ug']:.1f}±{ln['b_los_err_ug']:.1f} µG")
-            t.add_row(
-                name,
-                pm(ln["v_lsr_kms"], ln["v_lsr_err_kms"], ".2f"),
-                pm(ln["peak"], ln["peak_err"], ".4g"),
-                pm(ln["fwhm_kms"], ln["fwhm_err_kms"], ".2f"),
-                pm(ln["integral"], ln["integral_err"], ".4g"),
+                extra.append(f"B_los {_pm(ln['b_los_ug'], ln['b_los_err_ug'])} µG")
+            row = [name]
+            if wide:
+                row.append(ln["transition"] or "")
+            row += [
+                _pm(ln["v_lsr_kms"], ln["v_lsr_err_kms"]),
+                _pm(ln["fwhm_kms"], ln["fwhm_err_kms"]),
+                _pm(ln["peak"], ln["peak_err"]),
+                _pm(ln["integral"], ln["integral_err"]),
                 f"{ln['snr']:.1f}",
-                format_cell(ln["id_score"]),
-                f"{ln['runner_up']} ({ln['runner_up_score']:.2g})" if ln["runner_up"] else "",
-                ", ".join(extra),
-            )
+                "" if ln["id_score"] is None else f"{ln['id_score']:.2f}",
+            ]
+            if wide:
+                row.append(
+                    f"{ln['runner_up']} ({ln['runner_up_score']:.2g})" if ln["runner_up"] else ""
+                )
+            if wide:
+                row.append(", ".join(extra))
+            elif extra:
+                notes.append(f"  {name}: {', '.join(extra)}")
+            t.add_row(*row)
         out.print(t)
+        for note in notes:
+            out.print(note)
         out.print()
 
 
