@@ -137,10 +137,11 @@ def _print_table(records: list[dict[str, Any]]) -> None:
             continue
         unit = r["intensity_unit"] or "intensity"
         t = Table(show_edge=False, pad_edge=False, box=None, header_style="bold")
-        t.add_column("line (? = MHz)", no_wrap=True)
+        t.add_column("line", no_wrap=True)
         if wide:
             t.add_column("transition", no_wrap=True)
-        for col in ("v_LSR km/s", "FWHM km/s", f"peak {unit}", f"∫ {unit}·km/s"):
+        cols = ["v_LSR km/s", "FWHM km/s", f"peak {unit}"] + ([f"∫ {unit}·km/s"] if wide else [])
+        for col in cols:
             t.add_column(col, justify="right", no_wrap=True)
         t.add_column("S/N", justify="right", no_wrap=True, min_width=5)
         t.add_column("score", justify="right", no_wrap=True, min_width=5)
@@ -161,7 +162,7 @@ def _print_table(records: list[dict[str, Any]]) -> None:
                 _pm(ln["v_lsr_kms"], ln["v_lsr_err_kms"]),
                 _pm(ln["fwhm_kms"], ln["fwhm_err_kms"]),
                 _pm(ln["peak"], ln["peak_err"]),
-                _pm(ln["integral"], ln["integral_err"]),
+                *([_pm(ln["integral"], ln["integral_err"])] if wide else []),
                 f"{ln['snr']:.1f}",
                 "" if ln["id_score"] is None else f"{ln['id_score']:.2f}",
             ]
@@ -177,6 +178,10 @@ def _print_table(records: list[dict[str, Any]]) -> None:
         out.print(t)
         for note in notes:
             out.print(note)
+        if not wide:
+            out.print(
+                "  (? = unidentified, at the observed MHz; wider terminal or --format json: integrals)"
+            )
         out.print()
 
 
