@@ -26,7 +26,7 @@ SPECCAT = [sys.executable, "-m", "speccat"]
 N_WRITERS = 4
 
 
-def make_night(root: Path, n_sets: int = 6) -> tuple[list[Path], dict[str, int]]:
+def make_night(root: Path, n_sets: int = 5) -> tuple[list[Path], dict[str, int]]:
     """Valid files (4 per set, distinct noise) in six folders; returns the folders and the
     number of spectra of every file (by SHA-256) as ``speccat.io.read`` finds them."""
     import hashlib
@@ -83,7 +83,7 @@ class ReaderLoop(threading.Thread):
     first page, a fresh read-only open each time) and the real ``speccat query --format json``
     a few times (each run costs a process start)."""
 
-    def __init__(self, archive: str, cli_runs: int = 3) -> None:
+    def __init__(self, archive: str, cli_runs: int = 2) -> None:
         super().__init__(daemon=True)
         self.archive = archive
         self.cli_runs = cli_runs
@@ -198,7 +198,7 @@ def _pg_rows(url: str, sql: str) -> list[Any]:
 @pytest.mark.slow
 @pytest.mark.postgres
 def test_four_postgresql_writers_race_for_the_same_files(tmp_path: Path, fresh_pg_url: str) -> None:
-    folders, expected = make_night(tmp_path / "night", n_sets=4)
+    folders, expected = make_night(tmp_path / "night", n_sets=3)
     from speccat.archive import Archive
 
     Archive.open(fresh_pg_url, create=True).close()
