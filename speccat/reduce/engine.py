@@ -16,6 +16,9 @@ from speccat.reduce.noise import correlation_factor
 from speccat.reduce.settings import ReduceSettings
 
 SQRT2PI = float(np.sqrt(2.0 * np.pi))
+#: A fitted component whose |peak| exceeds this many times the data's largest |value| in its
+#: blend window is absurd (it must be cancelled by another) and is pruned.
+PEAK_LIMIT = 3.0
 
 
 @dataclass(frozen=True)
@@ -115,8 +118,10 @@ def _simplest(
     x: np.ndarray, y: np.ndarray, p0: np.ndarray, noise: Noise, detect_sigma: float
 ) -> GroupFit:
     """Fit ``p0`` jointly, then drop components one at a time, refitting from the remaining
-    start values: first any that left the window or became absurd, then any whose amplitude
-    is below detect_sigma times its own error.
+    start values: first any that left the window or became absurd (|peak| above PEAK_LIMIT x
+    the data's largest |value| in the window, or the weaker of an opposite-sign pair that
+    shares a centre, see ``_cancelling``), then any whose amplitude is below detect_sigma times
+    its own error.
 
     The amplitude's Wald statistic (A / sigma_A)^2 approximates the rise of chi^2 when the
     component is removed and the others refitted (Wald 1943, Trans. AMS 54, 426), so this is
@@ -125,6 +130,7 @@ def _simplest(
     profile = "gaussian" if p0.shape[1] == 3 else "voigt"
     fit = fit_components(x, y, p0, profile)
     span = float(x[-1] - x[0]) if x.size > 1 else 1.0
+    top = float(np.max(np.abs(y))) if y.size else 0.0
     while fit.params.shape[0] > 1 and not over_budget():
         p = fit.params
         wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
@@ -134,6 +140,8 @@ def _simplest(
             | (p[:, 1] > x[-1] + 0.25 * span)
             | (wid > 2.0 * span)
             | (wid < 0.05)
+            | (np.abs(_peaks(p, profile)) > PEAK_LIMIT * top)
+            | _cancelling(p)
         )
         if bad.any():
             worst = int(np.flatnonzero(bad)[0])
@@ -147,6 +155,35 @@ def _simplest(
         p0 = np.delete(p0, worst, axis=0)
         fit = fit_components(x, y, p0, profile)
     return fit
+
+
+def _peaks(p: np.ndarray, profile: str) -> np.ndarray:
+    """Peak value of each component (Voigt rows hold the area, so evaluate at the centre)."""
+    safe = np.where(np.isfinite(p), p, 0.0)
+    if profile == "gaussian":
+        return np.asarray(safe[:, 0])
+    return np.array([model(safe[i : i + 1, 1], safe[i : i + 1], profile)[0] for i in range(len(p))])
+
+
+def _cancelling(p: np.ndarray) -> np.ndarray:
+    """The weaker member of every opposite-sign pair whose centres differ by less than half
+    the narrower sigma and whose widths differ by less than a factor of 2: such a pair is a
+    near-degenerate difference of two similar profiles (they cancel), not two lines. A narrow
+    absorption on a much broader emission (self-absorption) is not affected."""
+    k = p.shape[0]
+    out = np.zeros(k, dtype=bool)
+    if k < 2:
+        return out
+    safe = np.where(np.isfinite(p), p, 0.0)
+    sig = reach_sigma(safe)
+    amp, cen = safe[:, 0], safe[:, 1]
+    i, j = np.triu_indices(k, 1)
+    near = np.abs(cen[i] - cen[j]) < 0.5 * np.minimum(sig[i], sig[j])
+    alike = np.maximum(sig[i], sig[j]) < 2.0 * np.minimum(sig[i], sig[j])
+    pair = near & alike & (amp[i] * amp[j] < 0)
+    weaker = np.where(np.abs(amp[i]) < np.abs(amp[j]), i, j)
+    out[weaker[pair]] = True
+    return out
 
 
 def fit_groups(

@@ -164,11 +164,20 @@ def _gauss_funcs(
 def fit_components(
     x: np.ndarray, y: np.ndarray, p0: np.ndarray, profile: str, maxfev: int = 200
 ) -> GroupFit:
-    """Least-squares fit of ``p0.shape[0]`` components to (x, y); x in channels."""
+    """Least-squares fit of ``p0.shape[0]`` components to (x, y); x in channels.
+
+    Each component keeps the sign of its start amplitude: the fit runs on A = sign exp(a), so
+    components of one blend cannot grow into huge opposite-sign pairs that cancel each other
+    (a component that is not there shrinks towards zero and is pruned by the caller). The
+    covariance is then evaluated in the plain parameters [A, c, ...] at the solution.
+    """
     k, npar = p0.shape
     x0 = float(np.mean(x))
     start = p0.copy()
     start[:, 1] -= x0
+    sign = np.where(p0[:, 0] >= 0.0, 1.0, -1.0)
+    tiny = 1e-12 * max(float(np.max(np.abs(y))) if y.size else 0.0, 1e-300)
+    start[:, 0] = np.log(np.maximum(np.abs(p0[:, 0]), tiny))
     xs = x - x0
     calls = [0]
     if profile == "gaussian":
@@ -181,18 +190,30 @@ def fit_components(
         def jac(flat: np.ndarray) -> np.ndarray:
             return jacobian(xs, flat.reshape(k, npar), profile).T
 
+    def plain(flat: np.ndarray) -> np.ndarray:
+        p = flat.reshape(k, npar).copy()
+        p[:, 0] = sign * np.exp(np.minimum(p[:, 0], 700.0))
+        return p.ravel()
+
     def resid(flat: np.ndarray) -> np.ndarray:
         calls[0] += 1
-        return plain_resid(flat)
+        return plain_resid(plain(flat))
+
+    def log_jac(flat: np.ndarray) -> np.ndarray:
+        lin = plain(flat)
+        out = jac(lin).copy()
+        out[0::npar] *= lin[0::npar, None]  # d/da = A d/dA
+        return out
 
     with np.errstate(all="ignore"):
         with warnings.catch_warnings():  # ier says whether it converged; no warning wanted
             warnings.simplefilter("ignore", RuntimeWarning)
-            sol, ier = scipy.optimize.leastsq(
-                resid, start.ravel(), Dfun=jac, col_deriv=True, ftol=1e-9, xtol=1e-9,
+            sol_log, ier = scipy.optimize.leastsq(
+                resid, start.ravel(), Dfun=log_jac, col_deriv=True, ftol=1e-9, xtol=1e-9,
                 maxfev=_budget(maxfev, x.size, p0.size, profile),
             )  # fmt: skip
-        r = resid(sol)
+        r = resid(sol_log)
+        sol = plain(sol_log)
         jm = jac(sol)
     work = WORK.get()
     if work is not None:

@@ -12,6 +12,7 @@ from speccat.reduce.fit import Component, components, model
 from speccat.reduce.noise import correlation_factor
 from speccat.reduce.profile import box_correlation_factor, direct_sum, moments, peak_fraction_width
 from speccat.reduce.settings import ReduceSettings
+from speccat.reduce.wide import clusters, is_wide, merge, wide_component
 
 #: A peak-fraction width is reported only when its level (fraction x peak) is this many rms.
 WIDTH_LEVEL_SIGMA = 4.0
@@ -38,47 +39,132 @@ def assemble(
     data = np.where(valid, resid, np.nan)
     total = model(chan, everything, profile)  # once: k x n, not k^2 x window
     out: list[LineFit] = []
-    for index, group in enumerate(groups):
-        comps = components(group.fit)
-        chi2 = group.fit.rss / group.fit.dof / noise.rms**2
-        poor = (not group.fit.success) or chi2 > max(
-            s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
-        )
-        dominant = max(comps, key=lambda c: abs(c.peak))
-        sign = 1.0 if dominant.peak >= 0 else -1.0
-        x = chan[group.lo : group.hi]
-        others = total[group.lo : group.hi] - model(x, group.params, profile)
-        prof = sign * (data[group.lo : group.hi] - others)
-        top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
-        widths = [
-            peak_fraction_width(prof, frac) if frac * top >= WIDTH_LEVEL_SIGMA * noise.rms else None
-            for frac in (0.5, 0.2)
-        ]
-        for i, comp in enumerate(comps):
-            lo, hi = _window(comp, n, s.sum_window_fwhm)
-            xs = chan[lo:hi]
-            own = model(xs, group.params[i : i + 1], profile)
-            isolated = data[lo:hi] - (total[lo:hi] - own)
-            if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
-                comp = _unresolved(comp, isolated, lo, noise)
-            flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)
-            out.append(
-                _linefit(
-                    comp,
-                    freq,
-                    dfdc,
-                    isolated,
-                    (lo, hi),
-                    noise,
-                    s,
-                    chi2,
-                    group.fit.dof,
-                    index,
-                    flags,
-                    widths,
-                )
+    index = 0
+    for cluster in clusters(groups):
+        merged = merge(cluster)
+        comps = [c for g in cluster for c in components(g.fit)]
+        if is_wide(merged.params, comps, merged.lo, merged.hi, profile):
+            chi2 = merged.fit.rss / merged.fit.dof / noise.rms**2
+            masks = (valid, clip)
+            wide = _wide_linefit(
+                freq, dfdc, data, total, merged, comps, masks, noise, s, chi2, index
             )
+            if wide is not None:
+                out.append(wide)
+                index += 1
+                continue
+        for group in cluster:
+            out.extend(_group_lines(freq, dfdc, data, total, group, (valid, clip), noise, s, index))
+            index += 1
     return sorted(out, key=lambda line: line.center_hz)
+
+
+def _group_lines(
+    freq: np.ndarray,
+    dfdc: np.ndarray,
+    data: np.ndarray,
+    total: np.ndarray,
+    group: Group,
+    masks: tuple[np.ndarray, np.ndarray],
+    noise: Noise,
+    s: ReduceSettings,
+    index: int,
+) -> list[LineFit]:
+    """One ``LineFit`` per component of an ordinary blend group (Gaussian/Voigt values)."""
+    n = data.size
+    chan = np.arange(n, dtype=float)
+    profile = s.profile
+    valid, clip = masks
+    out: list[LineFit] = []
+    comps = components(group.fit)
+    chi2 = group.fit.rss / group.fit.dof / noise.rms**2
+    poor = (not group.fit.success) or chi2 > max(
+        s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
+    )
+    dominant = max(comps, key=lambda c: abs(c.peak))
+    sign = 1.0 if dominant.peak >= 0 else -1.0
+    x = chan[group.lo : group.hi]
+    others = total[group.lo : group.hi] - model(x, group.params, profile)
+    prof = sign * (data[group.lo : group.hi] - others)
+    top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
+    widths = [
+        peak_fraction_width(prof, frac) if frac * top >= WIDTH_LEVEL_SIGMA * noise.rms else None
+        for frac in (0.5, 0.2)
+    ]
+    for i, comp in enumerate(comps):
+        lo, hi = _window(comp, n, s.sum_window_fwhm)
+        xs = chan[lo:hi]
+        own = model(xs, group.params[i : i + 1], profile)
+        isolated = data[lo:hi] - (total[lo:hi] - own)
+        if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
+            comp = _unresolved(comp, isolated, lo, noise)
+        flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)
+        out.append(
+            _linefit(
+                comp,
+                freq,
+                dfdc,
+                isolated,
+                (lo, hi),
+                noise,
+                s,
+                chi2,
+                group.fit.dof,
+                index,
+                flags,
+                widths,
+            )
+        )
+    return out
+
+
+def _wide_linefit(
+    freq: np.ndarray,
+    dfdc: np.ndarray,
+    data: np.ndarray,
+    total: np.ndarray,
+    group: Group,
+    comps: list[Component],
+    masks: tuple[np.ndarray, np.ndarray],
+    noise: Noise,
+    s: ReduceSettings,
+    chi2: float,
+    index: int,
+) -> LineFit | None:
+    """One ``LineFit`` (profile ``"w50"``) for a wide profile; see ``speccat.reduce.wide``.
+
+    ``fwhm_hz`` is W50 (not a Gaussian FWHM); centre/width errors are the edge-slope errors,
+    not the fit covariance; ``integral_fit_hz`` is the sum of the component areas.
+    """
+    n = data.size
+    chan = np.arange(n, dtype=float)
+    glo, ghi = group.lo, group.hi
+    seg = data[glo:ghi] - (total[glo:ghi] - model(chan[glo:ghi], group.params, s.profile))
+    found = wide_component(seg, group.params, comps, glo, ghi, noise.rms, s.profile)
+    if found is None:
+        return None
+    comp, e50, e20 = found
+    lo, hi = _window(comp, n, s.sum_window_fwhm)
+    own = model(chan[lo:hi], group.params, s.profile)
+    isolated = data[lo:hi] - (total[lo:hi] - own)
+    valid, clip = masks
+    flags = tuple(f for f in _flags(comp, False, 1, n, valid, clip, noise, s) if f != "rfi-spike")
+    poor = (not group.fit.success) or chi2 > max(
+        s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
+    )
+    flags = flags + (("poor-fit",) if poor else ())
+    line = _linefit(
+        comp, freq, dfdc, isolated, (lo, hi), noise, s, chi2, group.fit.dof, index, flags,
+        [e50.width, None if e20 is None else e20.width],
+    )  # fmt: skip
+    scale = float(np.interp(comp.center, chan, dfdc))
+    return replace(
+        line,
+        center_err_hz=comp.center_err * scale,
+        fwhm_err_hz=comp.fwhm_err * scale,
+        peak_err=noise.rms,
+        profile="w50",
+    )
 
 
 def _unresolved(comp: Component, isolated: np.ndarray, lo: int, noise: Noise) -> Component:

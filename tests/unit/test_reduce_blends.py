@@ -1,0 +1,103 @@
+"""Blends: components may not cancel each other; wide (double-horned) profiles are one line."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from speccat.io import read
+from speccat.reduce import measure
+from speccat.reduce.engine import Noise, _simplest
+from speccat.reduce.fit import fit_components
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_archive"
+
+
+def _gauss(chan: np.ndarray, amp: float, cen: float, sig: float) -> np.ndarray:
+    return amp * np.exp(-0.5 * ((chan - cen) / sig) ** 2)
+
+
+def _mixed_start() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """One Gaussian line (peak 0.1, sigma 12) started as an emission + absorption + emission
+    blend at nearly one centre: unconstrained, such starts grow into huge cancelling pairs."""
+    rng = np.random.default_rng(3)
+    x = np.arange(200.0)
+    y = _gauss(x, 0.1, 100.0, 12.0) + rng.normal(0.0, 0.0015, x.size)
+    p0 = np.array([[0.1, 100, np.log(12)], [-0.02, 101, np.log(10)], [0.01, 104, np.log(9)]])
+    return x, y, p0
+
+
+def _no_cancelling(peaks: np.ndarray, centres: np.ndarray, sigmas: np.ndarray, top: float):
+    assert np.all(np.abs(peaks) <= 3.0 * top), peaks
+    for i in range(peaks.size):
+        for j in range(i + 1, peaks.size):
+            if peaks[i] * peaks[j] < 0:
+                assert abs(centres[i] - centres[j]) > 0.5 * min(sigmas[i], sigmas[j])
+
+
+def test_fit_keeps_each_component_sign_and_size() -> None:
+    x, y, p0 = _mixed_start()
+    fit = fit_components(x, y, p0, "gaussian")
+    assert np.all(np.sign(fit.params[:, 0]) == np.sign(p0[:, 0]))
+    assert np.all(np.abs(fit.params[:, 0]) <= 3.0 * np.max(np.abs(y)))
+    assert fit.params[0, 0] == pytest.approx(0.1, rel=0.05)
+
+
+def test_pruned_blend_has_no_cancelling_pair() -> None:
+    x, y, p0 = _mixed_start()
+    fit = _simplest(x, y, p0, Noise(0.0015, np.zeros(0)), 5.3)
+    p = fit.params
+    _no_cancelling(p[:, 0], p[:, 1], np.exp(p[:, 2]), float(np.max(np.abs(y))))
+    assert p.shape[0] == 1
+    assert p[0, 1] == pytest.approx(100.0, abs=0.3)
+
+
+@pytest.mark.parametrize("name", ["nebula07_h109a.fits.gz", "field02_hi_vrad.fits.gz"])
+def test_sample_blends_do_not_cancel(name: str) -> None:
+    spec = read(SAMPLE / name)[0]
+    y = spec.intensity["I"]
+    m = measure(spec.freq_hz, y)
+    top = float(np.nanmax(np.abs(y - m.continuum)))
+    peaks = np.array([line.peak for line in m.lines])
+    cen = np.array([line.center_hz for line in m.lines])
+    sig = np.array([line.fwhm_hz for line in m.lines]) / 2.3548
+    _no_cancelling(peaks, cen, sig, top)
+    assert 1 <= len(m.lines) <= 3  # nebula07: H109a + He109a; field02: two HI components
+
+
+def _horned(chan: np.ndarray, cen: float, half: float, ramp: float, dip: float) -> np.ndarray:
+    """Double-horned profile, horns of height 1 at |x| = half, a parabolic dip to ``dip`` at
+    the centre, linear outer edges reaching 0 at |x| = half + ramp: the 50 % crossings are at
+    |x| = half + ramp/2 exactly, so W50 = 2 half + ramp (analytic)."""
+    x = np.abs(chan - cen)
+    inner = 1.0 - (1.0 - dip) * (1.0 - (x / half) ** 2)
+    return np.where(x <= half, inner, np.clip((half + ramp - x) / ramp, 0.0, 1.0))
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_double_horned_profile_is_one_w50_detection(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    chan = np.arange(2048, dtype=float)
+    df = 2.0e3
+    freq = 1.4e9 + df * chan
+    cen, half, ramp = 1000.3, 60.0, 12.0
+    y = 0.3 + _horned(chan, cen, half, ramp, 0.6) + rng.normal(0.0, 0.02, chan.size)
+    m = measure(freq, y)
+    assert len(m.lines) == 1
+    line = m.lines[0]
+    assert line.profile == "w50"
+    w50 = 2.0 * half + ramp  # analytic, see _horned
+    assert abs(line.fwhm_chan - w50) <= 1.0
+    assert line.w50_hz == pytest.approx(line.fwhm_hz)
+    assert abs(line.center_chan - cen) <= 1.0
+    assert abs(line.center_hz - (1.4e9 + df * cen)) <= df
+    assert line.w20_hz is not None and line.w20_hz > line.w50_hz
+    assert line.peak == pytest.approx(1.0, abs=0.15)  # the highest horn
+    assert line.snr == pytest.approx(line.peak / m.rms)
+    # edge errors: rms / slope (1/ramp per channel) per edge, about 0.24 channel here
+    assert 0.05 * df < line.center_err_hz < 1.0 * df
+    # direct sum: area of the analytic profile, trapezoid edges + parabolic top
+    area = (2 * half * (1.0 - (1.0 - 0.6) * 2.0 / 3.0) + ramp) * df
+    assert line.integral_sum_hz == pytest.approx(area, abs=4 * line.integral_sum_err_hz)
