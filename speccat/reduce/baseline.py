@@ -174,7 +174,38 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
     denom = lo - 2 * mid + hi
     shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
-    return float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
+    period = float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
+    return period if spans_band(r, good, period) else 0.0
+
+
+def spans_band(r: np.ndarray, good: np.ndarray, period: float) -> bool:
+    """A standing wave runs through the whole band: the sinusoid fitted to all good channels
+    must also be present in each third of the band, i.e. each third's fit, projected on the
+    whole-band (sin, cos) amplitude vector, must reach a third of its length (periods are at
+    most a third of the band, so each third holds at least one cycle). A single wide feature
+    (e.g. a 21 cm galaxy profile not yet masked) puts low-frequency power into the
+    periodogram too, but only in the part of the band that holds it."""
+    n = r.size
+    arg = 2.0 * np.pi * np.arange(n, dtype=float) / period
+    basis = np.column_stack((np.sin(arg), np.cos(arg), np.ones(n)))
+    whole = _sinusoid(basis, r, good)
+    length = float(np.hypot(whole[0], whole[1]))
+    if length <= 0:
+        return False
+    third = np.arange(n) * 3 // n
+    for k in range(3):
+        part = _sinusoid(basis, r, good & (third == k))
+        if float(part[0] * whole[0] + part[1] * whole[1]) / length < length / 3.0:
+            return False
+    return True
+
+
+def _sinusoid(basis: np.ndarray, r: np.ndarray, good: np.ndarray) -> np.ndarray:
+    """Least-squares [sin, cos, offset] amplitudes over ``good`` channels (zeros if too few)."""
+    if good.sum() < 8:
+        return np.zeros(3)
+    coef = np.linalg.lstsq(basis[good], r[good], rcond=None)[0]
+    return np.asarray(coef)
 
 
 def refine_period(

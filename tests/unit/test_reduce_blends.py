@@ -101,3 +101,42 @@ def test_double_horned_profile_is_one_w50_detection(seed: int) -> None:
     # direct sum: area of the analytic profile, trapezoid edges + parabolic top
     area = (2 * half * (1.0 - (1.0 - 0.6) * 2.0 / 3.0) + ramp) * df
     assert line.integral_sum_hz == pytest.approx(area, abs=4 * line.integral_sum_err_hz)
+
+
+# (file, row, cz optical km/s, W50 km/s) from sample_archive/README.md (the generator's truth)
+GALAXIES = [
+    ("galaxy21_hi.fits", 0, 3120.0, 280.0),
+    ("galaxy28_hi_felo.fits", 0, 4475.0, 190.0),
+    ("galaxy34_hi.csv", 0, 2260.0, 350.0),
+    ("galaxy40_hi_vopt.fits", 0, 5810.0, 240.0),
+    ("galaxy52_hi.fit", 0, 1870.0, 150.0),
+    ("galaxies45-47_hi.fits.gz", 0, 3650.0, 210.0),
+    ("galaxies45-47_hi.fits.gz", 2, 3580.0, 120.0),
+]
+
+
+@pytest.mark.parametrize(("name", "row", "cz_kms", "w50_kms"), GALAXIES)
+def test_sample_galaxy_is_one_w50_detection(name: str, row: int, cz_kms: float, w50_kms: float):
+    spec = read(SAMPLE / name)[row]
+    m = measure(spec.freq_hz, spec.intensity["I"])
+    assert len(m.lines) == 1
+    line = m.lines[0]
+    assert line.profile == "w50" and line.kind.value == "emission"
+    # optical convention: f = f0 / (1 + cz/c), df = f dv / (c (1 + z)) (common practice)
+    c_kms, f0 = 299792.458, 1420.405751768e6
+    z = cz_kms / c_kms
+    f = f0 / (1.0 + z)
+    w50_hz = f * w50_kms / (c_kms * (1.0 + z))
+    assert line.center_hz == pytest.approx(f, abs=0.05 * w50_hz)
+    assert line.fwhm_hz == pytest.approx(w50_hz, rel=0.05)
+
+
+def test_ripple_must_span_the_band() -> None:
+    from speccat.reduce.baseline import spans_band
+
+    chan = np.arange(2048, dtype=float)
+    good = np.ones(chan.size, dtype=bool)
+    ripple = np.sin(2 * np.pi * chan / 230.0)
+    assert spans_band(ripple, good, 230.0)
+    lump = np.where(np.abs(chan - 500.0) < 170.0, 1.0, 0.0)  # one wide feature, one third
+    assert not spans_band(lump - lump.mean(), good, 700.0)
