@@ -153,7 +153,9 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     """Period (channels) of a significant sinusoid in the good-channel residual, else 0.
 
     Periods from 4 channels to a third of the band are searched on the FFT grid (peak interpolated); the
-    peak's normalised power must exceed ln(M / false_alarm) for M independent frequencies.
+    peak's normalised power must exceed ln(M / false_alarm) for M independent frequencies,
+    and the sinusoid must run through the whole band (``spans_band``); the four strongest
+    peaks above the level are tried in turn.
     """
     n = resid.size
     m = int(good.sum())
@@ -167,15 +169,22 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     if not band.any():
         return 0.0
     idx = np.flatnonzero(band)
-    best = idx[int(np.argmax(power[idx]))]
     n_indep = max(float(idx.size), 1.0)
-    if power[best] < np.log(n_indep / false_alarm):
-        return 0.0
-    lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
-    denom = lo - 2 * mid + hi
-    shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
-    period = float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
-    return period if spans_band(r, good, period) else 0.0
+    level = np.log(n_indep / false_alarm)
+    inner = idx[(idx > 0) & (idx < power.size - 1)]
+    peaks = inner[
+        (power[inner] >= level)
+        & (power[inner] >= power[inner - 1])
+        & (power[inner] >= power[inner + 1])
+    ]
+    for best in peaks[np.argsort(-power[peaks])][:4]:  # strongest first; a few candidates
+        lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
+        denom = lo - 2 * mid + hi
+        shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
+        period = float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
+        if spans_band(r, good, period):
+            return period
+    return 0.0
 
 
 def spans_band(r: np.ndarray, good: np.ndarray, period: float) -> bool:
