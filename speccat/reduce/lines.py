@@ -134,7 +134,9 @@ def _wide_linefit(
     """One ``LineFit`` (profile ``"w50"``) for a wide profile; see ``speccat.reduce.wide``.
 
     ``fwhm_hz`` is W50 (not a Gaussian FWHM); centre/width errors are the edge-slope errors,
-    not the fit covariance; ``integral_fit_hz`` is the sum of the component areas.
+    not the fit covariance. Nothing reported depends on how well the multi-Gaussian model
+    fits (it only brackets the edges), so ``integral_fit_hz`` is the direct sum too and no
+    ``poor-fit`` flag is set; ``chi2_red`` still reports the model's reduced chi^2.
     """
     n = data.size
     chan = np.arange(n, dtype=float)
@@ -149,10 +151,6 @@ def _wide_linefit(
     isolated = data[lo:hi] - (total[lo:hi] - own)
     valid, clip = masks
     flags = tuple(f for f in _flags(comp, False, 1, n, valid, clip, noise, s) if f != "rfi-spike")
-    poor = (not group.fit.success) or chi2 > max(
-        s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
-    )
-    flags = flags + (("poor-fit",) if poor else ())
     line = _linefit(
         comp, freq, dfdc, isolated, (lo, hi), noise, s, chi2, group.fit.dof, index, flags,
         [e50.width, None if e20 is None else e20.width],
@@ -163,6 +161,8 @@ def _wide_linefit(
         center_err_hz=comp.center_err * scale,
         fwhm_err_hz=comp.fwhm_err * scale,
         peak_err=noise.rms,
+        integral_fit_hz=line.integral_sum_hz,
+        integral_fit_err_hz=line.integral_sum_err_hz,
         profile="w50",
     )
 
