@@ -249,6 +249,9 @@ def fit_baseline(
 ) -> tuple[BaselineFit, np.ndarray]:
     """Iterative baseline: fit, clip |resid| > clip_sigma, dilate clipped runs, refit.
 
+    Without ``start`` the first fit is a straight line (order <= 1) so that a wide line is
+    clipped before the order is chosen by the BIC on the remaining channels.
+
     The clipping level uses the MAD of every fourth good channel when there are many (2.6 %
     precision at 16,000 channels is ample for a 3-sigma clip; the reported rms uses them all).
     ``start`` (good-channel mask, ripple period) warm-starts from an earlier call. Stops when
@@ -260,7 +263,10 @@ def fit_baseline(
     if good.sum() < 8:
         good = valid.copy()
     period = 0.0 if start is None or not ripple else start[1]
-    fit, _ = fit_linear(y, good, max_order, fixed_order, period)
+    # a cold start clips against a straight line first: a high-order polynomial fitted to
+    # every channel would follow a wide line (e.g. a 21 cm galaxy profile) and hide it
+    first = fixed_order if fixed_order is not None or start is not None else min(max_order, 1)
+    fit, _ = fit_linear(y, good, max_order, first, period)
     tolerance = max(2, int(0.002 * y.size))
     changed_before = True
     for it in range(max_iter):
@@ -268,6 +274,8 @@ def fit_baseline(
         sigma = robust_rms(resid[good][::4] if good.sum() > 4000 else resid[good])
         clipped = valid & (np.abs(resid) > clip_sigma * sigma)
         new_good = free & ~dilate_runs(clipped)
+        if new_good.sum() < max(8, 0.2 * valid.sum()):  # dilation took too much: undilated
+            new_good = free & ~clipped
         if new_good.sum() < max(8, 0.2 * valid.sum()):
             new_good = good
         new_period = period

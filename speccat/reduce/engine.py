@@ -6,7 +6,7 @@ Component parameter rows are [A, c, ln s] (Gaussian: peak, centre, sigma; channe
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -131,18 +131,22 @@ def _simplest(
     fit = fit_components(x, y, p0, profile)
     span = float(x[-1] - x[0]) if x.size > 1 else 1.0
     top = float(np.max(np.abs(y))) if y.size else 0.0
-    while fit.params.shape[0] > 1 and not over_budget():
-        p = fit.params
+
+    def absurd(p: np.ndarray) -> np.ndarray:
         wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
-        bad = (
+        return np.asarray(
             ~np.all(np.isfinite(p), axis=1)
             | (p[:, 1] < x[0] - 0.25 * span)
             | (p[:, 1] > x[-1] + 0.25 * span)
             | (wid > 2.0 * span)
             | (wid < 0.05)
-            | (np.abs(_peaks(p, profile)) > PEAK_LIMIT * top)
+            | ((np.abs(_peaks(p, profile)) > PEAK_LIMIT * top) & _seen(x, p, wid))
             | _cancelling(p)
         )
+
+    while fit.params.shape[0] > 1 and not over_budget():
+        p = fit.params
+        bad = absurd(p)
         if bad.any():
             worst = int(np.flatnonzero(bad)[0])
         else:
@@ -154,7 +158,23 @@ def _simplest(
                 break
         p0 = np.delete(p0, worst, axis=0)
         fit = fit_components(x, y, p0, profile)
+    p = fit.params
+    wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
+    runaway = (np.abs(_peaks(p, profile)) > PEAK_LIMIT * top) & _seen(x, p, wid)
+    if runaway.any():  # a lone component far above the data it sits on: no fit (dropped)
+        return replace(fit, params=np.full_like(p, np.nan))
     return fit
+
+
+def _seen(x: np.ndarray, p: np.ndarray, wid: np.ndarray) -> np.ndarray:
+    """Components whose peak is bounded by the data: all but those centred in a gap inside
+    the window (no fitted channel within max(1, sigma), e.g. saturated channels removed),
+    whose peak may legitimately exceed every channel seen."""
+    cen = np.where(np.isfinite(p[:, 1]), p[:, 1], 0.0)
+    idx = np.clip(np.searchsorted(x, cen), 1, max(x.size - 1, 1))
+    near = np.minimum(np.abs(x[idx - 1] - cen), np.abs(x[np.minimum(idx, x.size - 1)] - cen))
+    in_gap = (near > np.maximum(1.0, wid)) & (cen > x[0]) & (cen < x[-1])
+    return np.asarray(~in_gap)
 
 
 def _peaks(p: np.ndarray, profile: str) -> np.ndarray:

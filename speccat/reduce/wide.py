@@ -7,7 +7,12 @@ A blend group is a *wide profile* when all of these hold (channel units):
 2. its extent (outermost FWHM edges) exceeds ``MIN_EXTENT`` (3) times its narrowest FWHM;
 3. the group's fitted model, taken with the sign of its largest excursion, never returns to
    the baseline between the outermost components of that sign: it stays at or above
-   ``MIN_FLOOR`` (25 %) of its peak there.
+   ``MIN_FLOOR`` (25 %) of its peak there;
+4. no component of the other sign is both inside the body (the dominant-sign components'
+   centres +/- half their sigma) and narrower than ``NARROW_DIP`` (0.3) times the widest
+   dominant component: such a narrow dip (e.g. HI self-absorption) is a line of its own,
+   whereas opposite-sign components at the edges or as broad as the profile's parts are the
+   multi-Gaussian model's way of drawing steep edges and a central trough.
 
 Separate maser spikes (each its own group) and H/He/C recombination blends (two or three
 same-sign components that do return to the baseline between them) stay separate components.
@@ -35,6 +40,7 @@ from speccat.reduce.fit import FWHM_PER_SIGMA, Component, GroupFit, model
 MIN_COMPONENTS = 3
 MIN_EXTENT = 3.0
 MIN_FLOOR = 0.25
+NARROW_DIP = 0.3
 
 
 @dataclass(frozen=True)
@@ -104,10 +110,20 @@ def is_wide(params: np.ndarray, comps: list[Component], lo: int, hi: int, profil
     prof = model(chan, params, profile)
     sign = 1.0 if np.max(prof) >= -np.min(prof) else -1.0
     prof = sign * prof
-    same = cen[sign * peaks > 0]
-    inner = (chan >= np.min(same)) & (chan <= np.max(same))
+    dom = sign * peaks > 0
+    same = cen[dom]
+    if same.size == 0:
+        return False
+    inner = (chan >= np.floor(np.min(same))) & (chan <= np.ceil(np.max(same)))
     top = float(np.max(prof))
-    return bool(top > 0 and inner.any() and np.min(prof[inner]) >= MIN_FLOOR * top)
+    if not (top > 0 and inner.any() and np.min(prof[inner]) >= MIN_FLOOR * top):
+        return False
+    sig = fwhm[dom] / FWHM_PER_SIGMA
+    body_lo = float(np.min(cen[dom] - 0.5 * sig))
+    body_hi = float(np.max(cen[dom] + 0.5 * sig))
+    inside = (cen[~dom] >= body_lo) & (cen[~dom] <= body_hi)
+    narrow = fwhm[~dom] < NARROW_DIP * float(np.max(fwhm[dom]))
+    return not bool(np.any(inside & narrow))
 
 
 def _cross(v: np.ndarray, i: int, step: int, level: float) -> float:
@@ -119,9 +135,10 @@ def _cross(v: np.ndarray, i: int, step: int, level: float) -> float:
 def edges(data: np.ndarray, prof: np.ndarray, frac: float, top: float, rms: float) -> Edges | None:
     """Outermost crossings of ``frac`` x ``top`` (line positive, channels from 0).
 
-    The model ``prof`` brackets the search: the crossings are the outermost data channels at
-    or above the level within (rms / model slope x 3 + 2) channels of the model's crossings,
-    interpolated to the outer neighbour; the errors are rms / |model slope| there. None when
+    The model ``prof`` brackets the search: the crossings start at the outermost data channels
+    at or above the level within (rms / model slope x 3 + 2) channels of the model's
+    crossings, continue outwards while the data stay above it, and are interpolated to the
+    outer neighbour; the errors are rms / |model slope| there. None when
     the model's crossing is not inside the array (the profile runs off the window).
     """
     level = frac * top
@@ -138,8 +155,14 @@ def edges(data: np.ndarray, prof: np.ndarray, frac: float, top: float, rms: floa
     hits = np.flatnonzero(v[lo : hi + 1] >= level) + lo
     if hits.size == 0:
         return None
-    left = _cross(v, int(hits[0]), -1, level) if np.isfinite(v[hits[0] - 1]) else float(hits[0])
-    right = _cross(v, int(hits[-1]), 1, level) if np.isfinite(v[hits[-1] + 1]) else float(hits[-1])
+    # continue outwards while the data stay above the level (the bracket is only a start)
+    below_l = np.flatnonzero(v[: hits[0]] < level)
+    below_r = np.flatnonzero(v[hits[-1] + 1 :] < level)
+    if below_l.size == 0 or below_r.size == 0:
+        return None
+    a, b = int(below_l[-1]) + 1, int(hits[-1]) + 1 + int(below_r[0]) - 1
+    left = _cross(v, a, -1, level)
+    right = _cross(v, b, 1, level)
     return Edges(left, right, err_l, err_r)
 
 

@@ -111,7 +111,9 @@ GALAXIES = [
     ("galaxy40_hi_vopt.fits", 0, 5810.0, 240.0),
     ("galaxy52_hi.fit", 0, 1870.0, 150.0),
     ("galaxies45-47_hi.fits.gz", 0, 3650.0, 210.0),
+    ("galaxies45-47_hi.fits.gz", 1, 3710.0, 320.0),
     ("galaxies45-47_hi.fits.gz", 2, 3580.0, 120.0),
+    ("galaxy21_hi_ripple.fits", 0, 3120.0, 280.0),
 ]
 
 
@@ -140,3 +142,16 @@ def test_ripple_must_span_the_band() -> None:
     assert spans_band(ripple, good, 230.0)
     lump = np.where(np.abs(chan - 500.0) < 170.0, 1.0, 0.0)  # one wide feature, one third
     assert not spans_band(lump - lump.mean(), good, 700.0)
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_narrow_self_absorption_stays_two_gaussian_lines(seed: int) -> None:
+    """A narrow absorption dip on a broad emission line is a line of its own, not a W50
+    profile; and no runaway component appears (seed 1 once gave a peak of 1e6)."""
+    rng = np.random.default_rng(seed)
+    chan = np.arange(2048, dtype=float)
+    y = _gauss(chan, 1.0, 1000.0, 60.0 / 2.3548) + _gauss(chan, -0.4, 1001.0, 6.0 / 2.3548)
+    m = measure(1.4e9 + 2.0e3 * chan, y + rng.normal(0.0, 0.02, chan.size))
+    assert [line.profile for line in m.lines] == ["gaussian", "gaussian"]
+    assert sorted(round(line.peak, 1) for line in m.lines) == [-0.4, 1.0]
+    assert all(abs(line.center_chan - 1000.5) < 2.0 for line in m.lines)
