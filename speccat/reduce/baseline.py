@@ -193,7 +193,8 @@ def spans_band(r: np.ndarray, good: np.ndarray, period: float) -> bool:
     whole-band (sin, cos) amplitude vector, must reach a third of its length (periods are at
     most a third of the band, so each third holds at least one cycle). A single wide feature
     (e.g. a 21 cm galaxy profile not yet masked) puts low-frequency power into the
-    periodogram too, but only in the part of the band that holds it."""
+    periodogram too, but only in the part of the band that holds it. A third with fewer good
+    channels than one period is not judged; at least two thirds must be."""
     n = r.size
     arg = 2.0 * np.pi * np.arange(n, dtype=float) / period
     basis = np.column_stack((np.sin(arg), np.cos(arg), np.ones(n)))
@@ -202,11 +203,16 @@ def spans_band(r: np.ndarray, good: np.ndarray, period: float) -> bool:
     if length <= 0:
         return False
     third = np.arange(n) * 3 // n
+    tested = 0
     for k in range(3):
-        part = _sinusoid(basis, r, good & (third == k))
+        sel = good & (third == k)
+        if sel.sum() < max(period, 8):  # too few channels (e.g. masked lines) to judge
+            continue
+        tested += 1
+        part = _sinusoid(basis, r, sel)
         if float(part[0] * whole[0] + part[1] * whole[1]) / length < length / 3.0:
             return False
-    return True
+    return tested >= 2
 
 
 def _sinusoid(basis: np.ndarray, r: np.ndarray, good: np.ndarray) -> np.ndarray:

@@ -155,3 +155,13 @@ def test_narrow_self_absorption_stays_two_gaussian_lines(seed: int) -> None:
     assert [line.profile for line in m.lines] == ["gaussian", "gaussian"]
     assert sorted(round(line.peak, 1) for line in m.lines) == [-0.4, 1.0]
     assert all(abs(line.center_chan - 1000.5) < 2.0 for line in m.lines)
+
+
+def test_ripple_under_a_galaxy_profile_is_found() -> None:
+    """README truth: ripple period 0.9 MHz (230.4 channels of 3.90625 kHz), 0.004 Jy."""
+    spec = read(SAMPLE / "galaxy21_hi_ripple.fits")[0]
+    m = measure(spec.freq_hz, spec.intensity["I"])
+    assert "baseline-ripple" in m.flags
+    period_hz = m.baseline.ripple_period_chan * float(np.median(np.diff(spec.freq_hz)))
+    assert period_hz == pytest.approx(0.9e6, rel=0.03)
+    assert m.baseline.ripple_amp == pytest.approx(0.004, abs=0.001)
