@@ -14,15 +14,17 @@ A blend group is a *wide profile* when all of these hold (channel units):
    whereas opposite-sign components at the edges or as broad as the profile's parts are the
    multi-Gaussian model's way of drawing steep edges and a central trough.
 
-Separate maser spikes (each its own group) and H/He/C recombination blends (two or three
-same-sign components that do return to the baseline between them) stay separate components.
+Blend groups whose fit windows overlap are judged together (``clusters``). Separate maser
+spikes (each its own group) and H/He/C recombination blends (He + C: two same-sign
+components, rule 1; H with them: the model returns to the baseline between H and He, rule 3)
+stay separate components.
 
 Such a profile is reported the way 21 cm profiles are (common practice, e.g. Haynes et al.
 1999, AJ 117, 2039, sec. 3): W50/W20 between the outermost crossings of 50 %/20 % of the
 highest horn, centre = midpoint of the W50 edges, peak = highest horn, S/N = peak / rms. The
 edges are the outermost data crossings near the fitted multi-Gaussian model's crossings
-(linear interpolation between channels). Each edge's error is rms / |dI/dchannel| at the edge (common practice for
-edge-defined widths; form from memory: the error of a level crossing is the intensity noise
+(linear interpolation between channels). Each edge's error is rms / |dI/dchannel| at the
+edge, the slope taken from the model (common practice for edge-defined widths; from memory: the error of a level crossing is the intensity noise
 divided by the profile slope there); the centre error is half, the W50 error the whole of
 the quadrature sum of the two edge errors.
 """
