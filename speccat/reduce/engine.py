@@ -200,7 +200,7 @@ def _cancelling(p: np.ndarray) -> np.ndarray:
     i, j = np.triu_indices(k, 1)
     near = np.abs(cen[i] - cen[j]) < 0.5 * np.minimum(sig[i], sig[j])
     alike = np.maximum(sig[i], sig[j]) < 2.0 * np.minimum(sig[i], sig[j])
-    pair = near & alike & (amp[i] * amp[j] < 0)
+    pair = near & alike & (np.sign(amp[i]) * np.sign(amp[j]) < 0)
     weaker = np.where(np.abs(amp[i]) < np.abs(amp[j]), i, j)
     out[weaker[pair]] = True
     return out

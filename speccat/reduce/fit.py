@@ -221,10 +221,11 @@ def fit_components(
         work[0] += calls[0] * per_call  # + a constant for the Python overhead of each call
     rss = float(np.dot(r, r))
     dof = max(x.size - sol.size, 1)
-    cov = _inverse(jm @ jm.T) * (rss / dof)
+    with np.errstate(all="ignore"):  # a run-away fit overflows here; _inverse rejects it
+        cov = _inverse(jm @ jm.T) * (rss / dof)
     params = sol.reshape(k, npar).copy()
     params[:, 1] += x0
-    ok = bool(ier in (1, 2, 3, 4) and np.all(np.isfinite(params)))
+    ok = bool(ier in (1, 2, 3, 4) and np.all(np.isfinite(params)) and np.all(np.isfinite(cov)))
     return GroupFit(params, cov, rss, dof, profile, ok)
 
 
@@ -237,14 +238,21 @@ def _budget(maxfev: int, m: int, npar: int, profile: str) -> int:
 
 
 def _inverse(matrix: np.ndarray) -> np.ndarray:
-    """Inverse of the normal matrix; pseudo-inverse when it is singular or ill-conditioned."""
+    """Inverse of the normal matrix; pseudo-inverse when it is singular or ill-conditioned;
+    all-infinite (no usable errors, so the caller rejects the fit) when the matrix itself is
+    not finite or no decomposition converges (a run-away amplitude overflows the Jacobian)."""
+    if not np.all(np.isfinite(matrix)):
+        return np.full_like(matrix, np.inf)
     try:
         out = np.linalg.inv(matrix)
         if np.all(np.isfinite(out)) and np.all(np.diag(out) >= 0):
             return out
     except np.linalg.LinAlgError:
         pass
-    return np.asarray(np.linalg.pinv(matrix, rcond=1e-12))
+    try:
+        return np.asarray(np.linalg.pinv(matrix, rcond=1e-12))
+    except np.linalg.LinAlgError:
+        return np.full_like(matrix, np.inf)
 
 
 def voigt_fwhm(fwhm_g: np.ndarray | float, fwhm_l: np.ndarray | float) -> np.ndarray:

@@ -165,3 +165,13 @@ def test_ripple_under_a_galaxy_profile_is_found() -> None:
     period_hz = m.baseline.ripple_period_chan * float(np.median(np.diff(spec.freq_hz)))
     assert period_hz == pytest.approx(0.9e6, rel=0.03)
     assert m.baseline.ripple_amp == pytest.approx(0.004, abs=0.001)
+
+
+def test_a_run_away_fit_gives_no_usable_errors_instead_of_crashing() -> None:
+    """A Jacobian overflowed by a run-away amplitude must not reach an SVD that fails."""
+    from speccat.reduce.fit import _inverse
+
+    bad = np.array([[np.inf, 1.0], [1.0, np.nan]])
+    assert np.all(np.isinf(_inverse(bad)))
+    good = np.array([[4.0, 0.0], [0.0, 2.0]])
+    np.testing.assert_allclose(_inverse(good), np.diag([0.25, 0.5]))
