@@ -127,7 +127,7 @@ def _print_table(lines: list[CatalogueLine], near_hz: float | None) -> None:
     table.add_column("rest MHz", justify="right", no_wrap=True)
     if near_hz is not None:
         table.add_column("v km/s", justify="right", no_wrap=True)  # of a line seen at --near
-    table.add_column("class", overflow="fold")
+    table.add_column("class", no_wrap=True)
     table.add_column("FWHM km/s", overflow="fold")
     table.add_column("prior", justify="right")
     for line in lines:
@@ -136,7 +136,7 @@ def _print_table(lines: list[CatalogueLine], near_hz: float | None) -> None:
             # radio convention: the LSR velocity a line observed at --near would have
             cells.append(f"{C_KMS * (1 - near_hz / line.rest_freq_hz):+.1f}")
         cells += [
-            line.line_class,
+            "RRL" if line.line_class == "recombination" else line.line_class,
             f"{line.width_min_kms:g}-{line.width_max_kms:g}",
             f"{line.prior:.2f}",
         ]
