@@ -19,6 +19,7 @@ SQRT2PI = float(np.sqrt(2.0 * np.pi))
 #: A fitted component whose |peak| exceeds this many times the data's largest |value| in its
 #: blend window is absurd (it must be cancelled by another) and is pruned.
 PEAK_LIMIT = 3.0
+TRIAL_FEV = 100  # evaluation cap of the trial fits in _simplest (the kept fit: the default 200)
 
 
 @dataclass(frozen=True)
@@ -126,9 +127,13 @@ def _simplest(
     The amplitude's Wald statistic (A / sigma_A)^2 approximates the rise of chi^2 when the
     component is removed and the others refitted (Wald 1943, Trans. AMS 54, 426), so this is
     the detection threshold applied to each component given the others; one refit per drop.
+
+    Trial fits run on half the evaluation budget (an over-complete joint fit that wanders
+    until the cap is only used to pick the component to drop); the fit that is kept is redone
+    on the full budget when it stopped at the short cap.
     """
     profile = "gaussian" if p0.shape[1] == 3 else "voigt"
-    fit = fit_components(x, y, p0, profile)
+    fit = fit_components(x, y, p0, profile, maxfev=TRIAL_FEV)
     span = float(x[-1] - x[0]) if x.size > 1 else 1.0
     top = float(np.max(np.abs(y))) if y.size else 0.0
 
@@ -157,6 +162,8 @@ def _simplest(
             if wald[worst] >= detect_sigma:
                 break
         p0 = np.delete(p0, worst, axis=0)
+        fit = fit_components(x, y, p0, profile, maxfev=TRIAL_FEV)
+    if not fit.success:  # the kept fit gets the full budget, as every fit had before
         fit = fit_components(x, y, p0, profile)
     p = fit.params
     wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
