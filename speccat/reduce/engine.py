@@ -99,7 +99,6 @@ def _fit_all(
     chan = np.arange(n, dtype=float)
     groups = []
     rows_list = group_rows(params, s.max_components)
-    total = model(chan, params, s.profile) if len(rows_list) > 1 else np.zeros(n)
     for rows in rows_list:
         p0 = params[rows]
         lo, hi = window(p0, n)
@@ -107,7 +106,8 @@ def _fit_all(
         x = chan[lo:hi][sel]
         if x.size < p0.size + 1:
             continue
-        others = total[lo:hi][sel] - model(x, p0, s.profile) if len(rows_list) > 1 else 0.0
+        # the other components (of every other group) over this window only
+        others = model(x, np.delete(params, rows, axis=0), s.profile) if len(rows_list) > 1 else 0.0
         y = resid[lo:hi][sel] - others
         fit = _simplest(x, y, p0, noise, s.detect_sigma)
         if np.all(np.isfinite(fit.params)) and np.all(np.isfinite(fit.cov)):
