@@ -3,8 +3,8 @@
 Spectral types and their relation to frequency follow FITS WCS Paper III (Greisen et al. 2006,
 A&A 446, 747, Table 1 and §3): FREQ (f), WAVE (vacuum wavelength, f = c/λ), VRAD
 (f = f0 (1 - v/c)), VOPT (f = f0 / (1 + v/c)), ZOPT (f = f0 / (1 + z)), VELO (apparent radial
-velocity, f = f0 sqrt((c - v)/(c + v))). The AIPS forms of §7.1 are read the way wcslib's
-``spcaips`` translates them: ``VELO-xxx`` (and plain ``VELO`` when VELREF is given) is VOPT, or
+velocity, f = f0 sqrt((c - v)/(c + v))). The legacy forms of §7.1 are read the way wcslib's legacy-axis
+translation reads them: ``VELO-xxx`` (and plain ``VELO`` when VELREF is given) is VOPT, or
 VRAD when VELREF >= 256; ``FELO`` is an optical velocity axis linear in frequency (VOPT-F2W).
 Linear axes are computed with numpy (about a microsecond); axes with a non-linear algorithm
 code (``-F2W``, ``-V2F``, ``-LOG``...) go through astropy.wcs (``sptr`` to frequency, then
@@ -107,19 +107,19 @@ class SpectralAxis:
 
 
 def _kind(ctype: str, keys: Keys) -> tuple[str, str]:
-    """Effective (type, algorithm) after the AIPS translation; algorithm '' means linear."""
+    """Effective (type, algorithm) after the legacy-axis translation; algorithm '' means linear."""
     up = ctype.strip().upper()
     base, tail = up[:4], up[5:].strip() if len(up) > 5 else ""
     if len(up) > 4 and up[4] != "-":
         raise ReadProblem(f"unknown spectral CTYPE {ctype.strip()!r}")
     velref = keys.number("VELREF")
-    aips_suffix = tail in SUFFIX_FRAMES and base in ("FREQ", "VELO", "FELO")
-    if base == "FELO" and (tail == "" or aips_suffix):
+    legacy_suffix = tail in SUFFIX_FRAMES and base in ("FREQ", "VELO", "FELO")
+    if base == "FELO" and (tail == "" or legacy_suffix):
         return "VOPT", "F2W"
-    if base == "VELO" and (aips_suffix or (tail == "" and velref)):
+    if base == "VELO" and (legacy_suffix or (tail == "" and velref)):
         radio = velref is not None and int(velref) >= 256
         return ("VRAD" if radio else "VOPT"), ""
-    if base == "FREQ" and aips_suffix:
+    if base == "FREQ" and legacy_suffix:
         return "FREQ", ""
     if tail and tail not in ALGORITHMS:
         raise ReadProblem(f"unknown spectral CTYPE {ctype.strip()!r}")

@@ -4,7 +4,7 @@ A reader gathers its keywords (a FITS header, a table row's columns merged over 
 header, or a CSV file's ``# KEY = value`` lines) into a :class:`Keys` mapping and asks this module
 for the source, time, site, position and declared frame. Keyword meanings follow the FITS
 standard 4.0 (Pence et al. 2010, A&A 524, A42, §4.4.2 and §8.4) and FITS WCS Paper III
-(Greisen et al. 2006, A&A 446, 747, §4 and Table 9; the AIPS ``VELREF`` convention in §7.1).
+(Greisen et al. 2006, A&A 446, 747, §4 and Table 9; the legacy ``VELREF`` convention in §7.1).
 """
 
 from __future__ import annotations
@@ -27,7 +27,7 @@ class ReadProblem(Exception):
 
 
 _MJD0 = datetime(1858, 11, 17, tzinfo=UTC)
-#: AIPS VELREF frame codes (Paper III §7.1; the values wcslib's spcaips uses).
+#: Legacy VELREF frame codes (Paper III §7.1; the values wcslib uses).
 VELREF_FRAMES = {
     1: "LSRK",
     2: "BARYCENT",
@@ -141,9 +141,9 @@ def rest_frequency_hz(keys: Keys) -> float | None:
 
 
 def declared_frame(keys: Keys, ctype: str) -> str:
-    """SPECSYS; else AIPS VELREF (modulo 256); else a legacy CTYPE suffix; else "" (unknown).
+    """SPECSYS; else Legacy VELREF (modulo 256); else a legacy CTYPE suffix; else "" (unknown).
 
-    The precedence VELREF over suffix is the one wcslib's ``spcaips`` applies.
+    The precedence VELREF over suffix is the one wcslib applies.
     """
     specsys = keys.text("SPECSYS")
     if specsys:

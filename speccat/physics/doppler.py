@@ -68,7 +68,7 @@ _ALIASES = {
     "LSRK": "LSRK", "LSR": "LSRK", "LSRD": "LSRD",
     "SOURCE": "SOURCE", "GALACTOC": "GALACTOC", "LOCALGRP": "LOCALGRP", "CMBDIPOL": "CMBDIPOL",
 }  # fmt: skip
-#: AIPS VELREF codes (mod 256): 1 LSR, 2 heliocentric, 3 observer.
+#: Legacy VELREF codes (mod 256): 1 LSR, 2 heliocentric, 3 observer.
 _VELREF = {1: "LSRK", 2: "HELIOCEN", 3: "TOPOCENT"}
 
 
@@ -119,7 +119,7 @@ def normalise_frame(specsys: str, velref: str | int | None = None) -> str:
     """The FITS Paper III name of a declared frame; "" when neither keyword says anything.
 
     Accepts SPECSYS values and common short forms (``LSR`` is taken as LSRK), or else an
-    AIPS ``VELREF`` code (1 LSR, 2 heliocentric, 3 topocentric; +256 for radio). Unknown
+    legacy ``VELREF`` code (1 LSR, 2 heliocentric, 3 topocentric; +256 for radio). Unknown
     names come back upper-cased, so that the caller can report them.
     """
     name = (specsys or "").strip().upper()

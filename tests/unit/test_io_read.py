@@ -148,7 +148,7 @@ def test_legacy_frames(tmp_path: Path, ctype: str, velref: int | None, specsys: 
     if velref is not None:
         h["VELREF"] = velref
     s = read(_write(tmp_path / "l.fits", _ramp(), h))[0]
-    assert s.specsys == specsys  # Paper III §7.1 (AIPS convention); unknown stays ""
+    assert s.specsys == specsys  # Paper III §7.1 (legacy VELREF convention); unknown stays ""
 
 
 def test_time_forms(tmp_path: Path) -> None:

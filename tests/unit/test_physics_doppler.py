@@ -55,7 +55,7 @@ def test_unknown_convention_is_rejected() -> None:
      ("", 2, "HELIOCEN"), ("", "3", "TOPOCENT"), ("", None, ""), ("BARY", None, "BARYCENT")],
 )  # fmt: skip
 def test_normalise_frame(specsys: str, velref: object, expected: str) -> None:
-    # AIPS VELREF codes: 1 LSR, 2 heliocentric, 3 observer, +256 radio (common practice).
+    # Legacy VELREF codes: 1 LSR, 2 heliocentric, 3 observer, +256 radio (common practice).
     assert normalise_frame(specsys, velref) == expected  # type: ignore[arg-type]
 
 
