@@ -30,6 +30,8 @@ def signatures(archive: Path) -> dict[str, Signature]:
     """sha256 -> Signature for every file in the archive."""
     db = sqlite3.connect(archive)
     try:
+        if "files" not in _tables(db):  # killed before the schema was made: nothing stored
+            return {}
         skip = {"id", "file_id", "spectrum_id", "detection_id", "run_id", "night", "path"}
         s_cols = _columns(db, "spectra", skip)
         d_cols = _columns(db, "detections", skip)

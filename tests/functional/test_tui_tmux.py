@@ -66,12 +66,14 @@ def test_browse_in_tmux_filters_by_source(tmp_path: Path) -> None:
         subprocess.run(
             ["tmux", "-L", socket, "send-keys", "-t", session, "-l", "ember*"], check=True
         )
-        screen = _wait_for(socket, session, f"{want} detections match")
+        _wait_for(socket, session, f"{want} detections match")
+        # the count and the table are separate queries: wait for the table's page as well
+        screen = _wait_for(socket, session, f"row 1 of {want} ")
         rows = [ln for ln in screen.splitlines() if ln.strip().split(" ")[0:1] and "-" in ln]
         sources = {ln.split()[0] for ln in rows if ln.split() and ln.split()[0][0].isupper()}
         assert "Ember-41" in sources
         assert not (sources & {"Wisp-3", "Halo-9", "Lantern-7", "Cinder-12"})
-        assert f"row 1 of {want}" in screen
+        assert f"row 1 of {want} " in screen
         subprocess.run(
             ["tmux", "-L", socket, "send-keys", "-t", session, "Escape", "q"], check=True
         )
