@@ -116,13 +116,8 @@ def _vounit(unit: str) -> str | None:
 
 
 def _derived_module() -> Any:
-    # Deferred: the physics of derived quantities is optional at export time.
-    try:
-        return importlib.import_module("speccat.physics.derived")
-    except ImportError:
-        raise ExportError(
-            "--with-derived: derived quantities are not available in this speccat"
-        ) from None
+    # Deferred import: only --with-derived needs the physics (and its astropy.coordinates).
+    return importlib.import_module("speccat.physics.derived")
 
 
 def with_derived(rows: Iterable[list[Any]]) -> Iterator[list[Any]]:

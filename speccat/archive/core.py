@@ -25,7 +25,6 @@ from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 from speccat import __version__
 from speccat.archive import engine as eng
 from speccat.archive.blobs import encode_data, encode_freq
-from speccat.archive.filters import catalogue_builtin
 from speccat.archive.queries import QueryMixin
 from speccat.archive.records import clean_float
 from speccat.archive.schema import (
@@ -148,11 +147,11 @@ class Archive(QueryMixin):
         return SCHEMA_VERSION
 
     def _fill_lines(self, conn: Connection) -> None:
-        builtin = catalogue_builtin()
-        if builtin is not None:
-            rows = _line_rows(builtin().lines)
-            if rows:
-                conn.execute(insert(lines), rows)  # a new archive: no conflicts to resolve
+        from speccat.catalogue import builtin  # deferred: only a new archive needs it
+
+        rows = _line_rows(builtin().lines)
+        if rows:
+            conn.execute(insert(lines), rows)  # a new archive: no conflicts to resolve
 
     def close(self) -> None:
         self._reader.dispose()

@@ -15,7 +15,6 @@ Semantics (the brute-force reference in the tests implements the same rules):
 
 from __future__ import annotations
 
-import importlib
 import math
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, fields
@@ -206,22 +205,12 @@ def parse_time(text: str, what: str, end_of_day: bool) -> datetime:
 
 def normalise_line(name: str) -> str:
     """The catalogue's own spelling of a line name, or ``name`` unchanged when unknown."""
-    builtin = catalogue_builtin()
-    if builtin is None:
-        return name
+    from speccat.catalogue import builtin  # deferred: building the catalogue costs ~25 ms
+
     try:
         return str(builtin().by_name(name).name)
     except Exception:  # CatalogueError for unknown names; keep the user's text
         return name
-
-
-def catalogue_builtin() -> Any:
-    """``speccat.catalogue.builtin`` when that module is installed, else None."""
-    try:
-        module = importlib.import_module("speccat.catalogue")
-    except ImportError:
-        return None
-    return getattr(module, "builtin", None)
 
 
 def glob_to_sqlite(pattern: str) -> str:

@@ -20,19 +20,11 @@ if TYPE_CHECKING:
 
 def warm_up() -> None:
     """Import what the inspector needs (catalogue, fitting, physics) ahead of first use."""
-    import importlib
+    import speccat.physics.derived
+    import speccat.reduce  # noqa: F401
+    from speccat.catalogue import builtin
 
-    for name in ("speccat.catalogue", "speccat.reduce", "speccat.physics.derived"):
-        try:
-            importlib.import_module(name)
-        except ImportError:
-            continue
-    try:
-        from speccat.catalogue import builtin
-
-        builtin()
-    except ImportError:
-        pass
+    builtin()
 
 
 def parse_filters(values: dict[str, str]) -> Any:
@@ -161,11 +153,8 @@ def _model(stored: Any, stokes: str, notes: list[str]) -> np.ndarray | None:
     ]
     if not fits:
         return None
-    try:
-        from speccat.reduce import line_model
-    except ImportError:
-        notes.append("fitted model unavailable (speccat.reduce.line_model missing)")
-        return None
+    from speccat.reduce import line_model
+
     return np.asarray(line_model(np.asarray(stored.freq_hz, float), fits), float)
 
 
@@ -173,24 +162,19 @@ def _markers(
     freq_hz: np.ndarray, factor: float, v_kms: float | None, notes: list[str]
 ) -> tuple[tuple[str, float], ...]:
     """Catalogue lines whose expected observed frequency (at ``v_kms``) falls in the band."""
-    try:
-        from speccat.catalogue import builtin
-    except ImportError:
-        notes.append("catalogue unavailable: no line markers")
-        return ()
+    from speccat.catalogue import builtin
+    from speccat.physics.doppler import freq_from_velocity
+
     v = float(v_kms) if v_kms is not None and math.isfinite(v_kms) else 0.0
-    shift = 1.0 - v / C_KMS  # radio convention: f_lsrk = rest * (1 - v/c)
+    shift = float(freq_from_velocity(v, 1.0, "radio"))  # f_lsrk / rest, radio convention
     f_lo, f_hi = float(np.min(freq_hz)) * factor, float(np.max(freq_hz)) * factor
     lines = builtin().between(f_lo / shift, f_hi / shift)
     return tuple((ln.name, ln.rest_freq_hz * shift / factor) for ln in lines)
 
 
 def _derived(row: dict[str, Any], notes: list[str]) -> dict[str, float | None]:
-    try:
-        from speccat.physics.derived import derived_quantities
-    except ImportError:
-        notes.append("derived quantities unavailable (speccat.physics.derived missing)")
-        return {}
+    from speccat.physics.derived import derived_quantities
+
     try:
         return dict(derived_quantities(row))
     except Exception as exc:  # a physics domain error is information, not a crash
