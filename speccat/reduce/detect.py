@@ -135,15 +135,19 @@ def find_seeds(
     rms: float,
     rho: np.ndarray,
     threshold: float,
-    taken: list[tuple[float, float]],
     limit: int,
-    reach: float = 2.0,
+    reach: float = 3.0,
 ) -> list[Seed]:
     """Peaks above ``threshold`` in any filtered spectrum, strongest first, one per feature.
 
-    A peak is shadowed (dropped) when it lies within ``reach`` sqrt(a^2 + s^2) channels of a feature
-    already accepted or already fitted (``taken``: centre, sigma), a the feature's sigma and s
-    the kernel's: it is that feature's own response at another scale.
+    Each accepted peak's width is refined between the ladder's scales (``_refined_sigma``) and
+    its amplitude follows from that width. A weaker peak of the same sign is shadowed (dropped)
+    when it lies within ``reach`` sqrt(a^2 + s^2) channels of an accepted feature, a the
+    feature's sigma and s the kernel's: it is that feature's own response at another scale or
+    position (a narrow kernel on the flank of a strong broad line). A real line that close is
+    a blend; the next round finds it in what the fitted model leaves. The kernels are
+    positive, so a feature never answers with the opposite sign: such peaks are never
+    shadowed.
     """
     # all scales in one array, separated by a zero, so the peak search is one vectorised pass
     sep = np.zeros(1)
@@ -161,26 +165,46 @@ def find_seeds(
     v_all = np.abs(flat_z[top])
     s_all = np.sign(flat_z[top])
     w_all = sigmas[j_all]
-    alive = np.ones(p_all.size, dtype=bool)
-    if taken:
-        cen_t = np.array([c for c, _ in taken])[:, None]
-        wid_t = np.array([a for _, a in taken])[:, None]
-        zone = reach * np.sqrt(wid_t**2 + w_all[None, :] ** 2)
-        alive &= ~np.any(np.abs(cen_t - p_all[None, :]) < zone, axis=0)
     corr = correlation_factor(rho, sigmas)
     seeds: list[Seed] = []
-    score = np.where(alive, v_all, -np.inf)
+    score = v_all.copy()
     while len(seeds) < limit:
         k = int(np.argmax(score))
         if not np.isfinite(score[k]):
             break
-        s = w_all[k]
-        # response of a peak-1 kernel of sigma s to a matched line of peak A: A sqrt(pi) s
-        filtered = s_all[k] * v_all[k] * rms * np.sqrt(corr[j_all[k]] * s * np.sqrt(np.pi))
-        seeds.append(
-            Seed(float(p_all[k]), float(s), float(filtered / (np.sqrt(np.pi) * s)), float(v_all[k]))
-        )
-        shadow = np.abs(p_all - p_all[k]) < reach * np.sqrt(s**2 + w_all**2)
-        score[shadow] = -np.inf
+        j, w = int(j_all[k]), float(w_all[k])
+        s = _refined_sigma(bank, sigmas, j, float(p_all[k]), float(s_all[k]))
+        # response of a peak-1 kernel of sigma w to a line of peak A and sigma s:
+        # A sqrt(2 pi) s w / sqrt(s^2 + w^2); its noise: rms sqrt(sqrt(pi) w x corr)
+        filtered = s_all[k] * v_all[k] * rms * np.sqrt(corr[j] * w * np.sqrt(np.pi))
+        amp = filtered * np.sqrt(s * s + w * w) / (np.sqrt(2.0 * np.pi) * s * w)
+        seeds.append(Seed(float(p_all[k]), s, float(amp), float(v_all[k])))
+        near = np.abs(p_all - p_all[k]) < reach * np.sqrt(s**2 + w_all**2)
+        score[near & (s_all == s_all[k])] = -np.inf
         score[k] = -np.inf
     return seeds
+
+
+def _refined_sigma(
+    bank: list[tuple[np.ndarray, int]], sigmas: np.ndarray, j: int, pos: float, sign: float
+) -> float:
+    """Line sigma from the matched-filter S/N at ``pos`` on scales j-1, j, j+1.
+
+    For a Gaussian line of sigma s, the S/N through a kernel of sigma w is proportional to
+    sqrt(2 s w / (s^2 + w^2)), a function of ln(w/s) symmetric about 0; a parabola through
+    the three scales in ln w puts its vertex at ln s (clamped to half a ladder step).
+    """
+    if j == 0 or j == len(bank) - 1:
+        return float(sigmas[j])
+    vals = []
+    for i in (j - 1, j, j + 1):
+        z, d = bank[i]
+        at = min(max(round(pos / d), 0), z.size - 1)
+        vals.append(sign * float(z[at]))
+    lo, mid, hi = vals
+    denom = lo - 2.0 * mid + hi
+    if not denom < 0:
+        return float(sigmas[j])
+    step = float(np.log(sigmas[j + 1] / sigmas[j]))
+    shift = min(max(0.5 * (lo - hi) / denom, -0.5), 0.5)
+    return float(sigmas[j] * np.exp(shift * step))

@@ -301,10 +301,8 @@ def detect_and_fit(
             left[lo:hi] -= np.where(valid[lo:hi], model(chan[lo:hi], p[None, :], profile), 0.0)
         bank = filter_bank(left, sigmas, noise.rms, noise.rho)
         room = settings.max_lines - params.shape[0]
-        reach = 2.0 if profile == "gaussian" else 4.0  # Lorentzian wings reach further
-        seeds = find_seeds(
-            bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, [], room, reach
-        )
+        reach = 3.0 if profile == "gaussian" else 5.0  # Lorentzian wings reach further
+        seeds = find_seeds(bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, room, reach)
         if not seeds:
             break
         start = np.concatenate((params, seed_params(seeds, profile)))
