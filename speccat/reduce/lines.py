@@ -30,14 +30,12 @@ def assemble(
     s: ReduceSettings,
 ) -> list[LineFit]:
     """One ``LineFit`` per fitted component, in frequency order; blend index in that order."""
-    n = resid.size
-    chan = np.arange(n, dtype=float)
-    dfdc = np.gradient(freq)
+    dfdc = channel_widths(freq)
     groups = sorted(groups, key=lambda g: float(np.min(g.params[:, 1])))
     everything = np.concatenate([g.params for g in groups]) if groups else np.zeros((0, 3))
     profile = s.profile
     data = np.where(valid, resid, np.nan)
-    total = model(chan, everything, profile)  # once: k x n, not k^2 x window
+    total = full_model(resid.size, everything, profile)
     out: list[LineFit] = []
     index = 0
     for cluster in clusters(groups):
@@ -59,6 +57,42 @@ def assemble(
     return sorted(out, key=lambda line: line.center_hz)
 
 
+def channel_widths(freq: np.ndarray) -> np.ndarray:
+    """d(freq)/d(channel) by central differences (one-sided at the ends), like np.gradient."""
+    out = np.empty_like(freq)
+    out[1:-1] = 0.5 * (freq[2:] - freq[:-2])
+    out[0] = freq[1] - freq[0]
+    out[-1] = freq[-1] - freq[-2]
+    return out
+
+
+def at_channel(values: np.ndarray, c: float) -> float:
+    """``values`` linearly interpolated at fractional channel ``c``, held constant beyond the
+    ends (what np.interp(c, arange(n), values) gives, without building the channel axis)."""
+    last = values.size - 1
+    if not c > 0:
+        return float(values[0])
+    if c >= last:
+        return float(values[last])
+    i = int(c)
+    return float((values[i + 1] - values[i]) * (c - i) + values[i])
+
+
+def full_model(n: int, params: np.ndarray, profile: str) -> np.ndarray:
+    """All components on channels 0..n-1. A Gaussian is evaluated within +/- 12 sigma of its
+    centre only (beyond that it is below 1e-31 of its peak); Voigt wings everywhere."""
+    if profile != "gaussian" or params.shape[0] == 0:
+        return model(np.arange(n, dtype=float), params, profile)
+    out = np.zeros(n)
+    sig = np.exp(np.minimum(np.maximum(params[:, 2], -12.0), 30.0))
+    los = np.clip(np.floor(params[:, 1] - 12.0 * sig), 0, n).astype(int)
+    his = np.clip(np.ceil(params[:, 1] + 12.0 * sig) + 1, 0, n).astype(int)
+    for p, lo, hi in zip(params, los, his, strict=True):
+        if hi > lo:
+            out[lo:hi] += model(np.arange(lo, hi, dtype=float), p[None, :], profile)
+    return out
+
+
 def _group_lines(
     freq: np.ndarray,
     dfdc: np.ndarray,
@@ -72,7 +106,6 @@ def _group_lines(
 ) -> list[LineFit]:
     """One ``LineFit`` per component of an ordinary blend group (Gaussian/Voigt values)."""
     n = data.size
-    chan = np.arange(n, dtype=float)
     profile = s.profile
     valid, clip = masks
     out: list[LineFit] = []
@@ -83,7 +116,7 @@ def _group_lines(
     )
     dominant = max(comps, key=lambda c: abs(c.peak))
     sign = 1.0 if dominant.peak >= 0 else -1.0
-    x = chan[group.lo : group.hi]
+    x = np.arange(group.lo, group.hi, dtype=float)
     others = total[group.lo : group.hi] - model(x, group.params, profile)
     prof = sign * (data[group.lo : group.hi] - others)
     top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
@@ -93,8 +126,7 @@ def _group_lines(
     ]
     for i, comp in enumerate(comps):
         lo, hi = _window(comp, n, s.sum_window_fwhm)
-        xs = chan[lo:hi]
-        own = model(xs, group.params[i : i + 1], profile)
+        own = model(np.arange(lo, hi, dtype=float), group.params[i : i + 1], profile)
         isolated = data[lo:hi] - (total[lo:hi] - own)
         if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
             comp = _unresolved(comp, isolated, lo, noise)
@@ -139,15 +171,15 @@ def _wide_linefit(
     ``poor-fit`` flag is set; ``chi2_red`` still reports the model's reduced chi^2.
     """
     n = data.size
-    chan = np.arange(n, dtype=float)
     glo, ghi = group.lo, group.hi
-    seg = data[glo:ghi] - (total[glo:ghi] - model(chan[glo:ghi], group.params, s.profile))
+    gx = np.arange(glo, ghi, dtype=float)
+    seg = data[glo:ghi] - (total[glo:ghi] - model(gx, group.params, s.profile))
     found = wide_component(seg, group.params, comps, glo, ghi, noise.rms, s.profile)
     if found is None:
         return None
     comp, e50, e20 = found
     lo, hi = _window(comp, n, s.sum_window_fwhm)
-    own = model(chan[lo:hi], group.params, s.profile)
+    own = model(np.arange(lo, hi, dtype=float), group.params, s.profile)
     isolated = data[lo:hi] - (total[lo:hi] - own)
     valid, clip = masks
     flags = tuple(f for f in _flags(comp, False, 1, n, valid, clip, noise, s) if f != "rfi-spike")
@@ -155,7 +187,7 @@ def _wide_linefit(
         comp, freq, dfdc, isolated, (lo, hi), noise, s, chi2, group.fit.dof, index, flags,
         [e50.width, None if e20 is None else e20.width],
     )  # fmt: skip
-    scale = float(np.interp(comp.center, chan, dfdc))
+    scale = at_channel(dfdc, comp.center)
     return replace(
         line,
         center_err_hz=comp.center_err * scale,
@@ -229,9 +261,7 @@ def _linefit(
     widths: list[float | None],
 ) -> LineFit:
     """``seg``: the data minus every other component over the summation window ``span``."""
-    n = freq.size
-    chan = np.arange(n, dtype=float)
-    scale = float(np.interp(comp.center, chan, dfdc))
+    scale = at_channel(dfdc, comp.center)
     # errors: the covariance is scaled by the fit's residual variance (reduced chi^2) when the
     # fit is statistically worse than the noise (chi^2_red > 1 + 3 sqrt(2/dof)), else by the
     # far better determined line-free rms^2 (Particle Data Group scale-factor convention);
@@ -249,7 +279,7 @@ def _linefit(
     lorentz = comp.lorentz_fwhm
     lorentz_err = comp.lorentz_fwhm_err
     return LineFit(
-        center_hz=float(np.interp(comp.center, chan, freq)),
+        center_hz=at_channel(freq, comp.center),
         center_err_hz=comp.center_err * inflate * scale,
         peak=comp.peak,
         peak_err=comp.peak_err * inflate,

@@ -12,7 +12,7 @@ from speccat.reduce.detect import kernel_sigmas
 from speccat.reduce.engine import Noise, detect_and_fit, reach_sigma
 from speccat.reduce.fit import FWHM_PER_SIGMA, WORK, model
 from speccat.reduce.lines import assemble
-from speccat.reduce.noise import autocorrelation, robust_rms
+from speccat.reduce.noise import autocorrelation, median, robust_rms
 from speccat.reduce.settings import ReduceError, ReduceSettings
 
 MIN_CHANNELS = 16
@@ -181,7 +181,7 @@ def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) ->
     return Measurement(
         stokes=stokes,
         rms=float(noise.rms),
-        continuum=float(np.median(base.total)),
+        continuum=median(base.total),
         baseline=model_out,
         lines=tuple(lines),
         flags=tuple(flags),

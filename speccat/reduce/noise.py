@@ -18,29 +18,45 @@ MAX_LAG = 8
 TRUNCATED_STD_35 = 0.9969395
 
 
+#: At most this many values seed the median and the MAD (every k-th value, deterministic).
+SEED_SAMPLE = 2048
+
+
 def robust_rms(values: np.ndarray) -> float:
     """Robust standard deviation of the finite values; NaN when fewer than 3.
 
-    Starts from 1.4826 x median(|v - median(v)|) and refines it twice by the standard
-    deviation of the values within 3.5 of those sigmas, divided by the truncated-Gaussian
-    factor 0.99694 (common practice: sigma clipping). The refinement keeps the MAD's
-    robustness to outliers and repairs it for coarsely quantised data, where the MAD itself
-    jumps between quantisation steps.
+    Starts from 1.4826 x median(|v - median(v)|) of at most ``SEED_SAMPLE`` evenly spaced
+    values and refines it twice by the standard deviation of all values within 3.5 of those
+    sigmas of the median, divided by the truncated-Gaussian factor 0.99694 (common practice:
+    sigma clipping). The refinement keeps the MAD's robustness to outliers, repairs it for
+    coarsely quantised data (where the MAD itself jumps between quantisation steps), and makes
+    the result as precise as the clipped standard deviation of every value: the seed only
+    sets the clipping level (2048 values put it within about 3 %).
     """
     v = values[np.isfinite(values)]
     if v.size < 3:
         return float("nan")
-    med = float(np.median(v))
-    dev = np.abs(v - med)
-    sigma = float(MAD_TO_SIGMA * np.median(dev))
+    seed = v[:: max(1, v.size // SEED_SAMPLE)]
+    med = median(seed)
+    sigma = MAD_TO_SIGMA * median(np.abs(seed - med))
     if sigma <= 0:
         sigma = float(np.std(v))
+    dev = np.abs(v - med)
     for _ in range(2):
         inside = dev[dev < 3.5 * sigma]
         if inside.size < 3:
             break
-        sigma = float(np.sqrt(np.mean(inside**2)) / TRUNCATED_STD_35)
+        sigma = float(np.sqrt(np.dot(inside, inside) / inside.size) / TRUNCATED_STD_35)
     return sigma
+
+
+def median(v: np.ndarray) -> float:
+    """Median of a non-empty 1-d array by partial sorting (what np.median gives, faster)."""
+    half = v.size // 2
+    if v.size % 2:
+        return float(np.partition(v, half)[half])
+    part = np.partition(v, (half - 1, half))
+    return 0.5 * float(part[half - 1] + part[half])
 
 
 def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG) -> np.ndarray:
