@@ -5,12 +5,20 @@ in two steps: the ids of the page, in order, from the detections table alone (an
 the default ``snr`` order and for each filter), then the full records of those ids.
 Ties are broken by detection id in the same direction as the sort. NULLs sort as the smallest
 value on both engines.
+
+On SQLite, a first page in the default order (snr, descending) under range or glob filters
+(``vel``, ``freq``, ``since``/``until``, a wildcard ``source``/``species``) is read by walking
+the covering index ``WALK_INDEX`` over the top ``WALK_ROWS`` rows of that order and stopping
+at the page; only when those rows hold too few matches is every match sorted instead (SQLite
+has no range statistics to choose between the two, and either alone is slow at 1M rows for
+some ranges). Both give the same rows.
 """
 
 from __future__ import annotations
 
 import json
 from collections.abc import Iterator
+from dataclasses import asdict
 from typing import Any
 
 from sqlalchemy import ColumnElement, Select, and_, func, or_, select
@@ -29,7 +37,14 @@ from speccat.archive.records import (
     to_record,
     to_values,
 )
-from speccat.archive.schema import candidates, detections, files, spectra, spectrum_data
+from speccat.archive.schema import (
+    WALK_INDEX,
+    candidates,
+    detections,
+    files,
+    spectra,
+    spectrum_data,
+)
 from speccat.errors import ArchiveError, FilterError
 from speccat.model import BaselineModel, Kind, LineFit
 
@@ -38,6 +53,19 @@ _JOINED = detections.join(spectra, spectra.c.id == detections.c.spectrum_id).joi
 )
 DISTINCT_COLUMNS = ("source", "species", "line", "night", "kind", "stokes")
 MAX_LIMIT = 100_000
+#: Rows of the default order a page may walk before sorting the matches instead: WALK_ROWS,
+#: or WALK_FACTOR * (offset + limit) for later pages, up to offset + limit = WALK_PAGE_MAX.
+WALK_ROWS = 20_000
+WALK_FACTOR = 100
+WALK_PAGE_MAX = 2_000
+#: Filters whose columns ``WALK_INDEX`` holds; those with ranges/globs prefer the walk.
+_WALK_FILTERS = frozenset(
+    {"source", "species", "vel_min_kms", "vel_max_kms", "freq_min_hz", "freq_max_hz"}
+    | {"snr_min", "since", "until"}
+)
+_RANGE_FILTERS = frozenset(
+    {"vel_min_kms", "vel_max_kms", "freq_min_hz", "freq_max_hz", "since", "until"}
+)
 
 
 class QueryMixin:
@@ -50,13 +78,18 @@ class QueryMixin:
     def _where(self, filters: Filters | None) -> list[ColumnElement[bool]]:
         return clauses(filters or Filters(), detections, self.dialect)
 
-    def _order(self, sort: str, descending: bool) -> list[Any]:
+    def _order(self, sort: str, descending: bool, no_index: bool = False) -> list[Any]:
+        """ORDER BY terms; ``no_index`` (numeric sorts on SQLite) makes SQLite sort the
+        matches rather than walk an index of the sort column (``col + 0``, same order)."""
         if sort not in SQL_COLUMNS or sort in ("spectrum_id",):
             raise FilterError(
                 f"--sort: unknown column {sort[:40]!r}; use one of the exported columns"
             )
         out = []
-        for col in (self._sort_column(sort), detections.c.id):
+        first: Any = self._sort_column(sort)
+        if no_index:
+            first = first + 0
+        for col in (first, detections.c.id):
             term = col.desc() if descending else col.asc()
             if self.dialect != "sqlite" and col is not detections.c.id:
                 term = term.nulls_last() if descending else term.nulls_first()
@@ -75,11 +108,54 @@ class QueryMixin:
         with self._reader.connect() as conn:
             return int(conn.execute(stmt).scalar_one())
 
-    def _id_select(self, filters: Filters | None, sort: str, descending: bool) -> Select[Any]:
+    def _id_select(
+        self, filters: Filters | None, sort: str, descending: bool, no_index: bool = False
+    ) -> Select[Any]:
         stmt = select(detections.c.id).where(*self._where(filters))
         if sort in JOINED_COLUMNS:
             stmt = stmt.select_from(_JOINED)
-        return stmt.order_by(*self._order(sort, descending))
+        return stmt.order_by(*self._order(sort, descending, no_index))
+
+    def _walks(self, filters: Filters | None, sort: str, descending: bool, rows: int) -> bool:
+        """Whether a page of ``rows`` (offset + limit) should try the walk of WALK_INDEX."""
+        if self.dialect != "sqlite" or sort != "snr" or not descending or filters is None:
+            return False
+        if rows > WALK_PAGE_MAX:
+            return False  # deep pages: the walk would have to cover too much of the order
+        active = {k for k, v in asdict(filters).items() if v is not None and v is not False}
+        if not active or not active <= _WALK_FILTERS:
+            return False
+        globs = {
+            k
+            for k in ("source", "species")
+            if k in active and set(getattr(filters, k)) & {"*", "?"}
+        }
+        return bool(active & _RANGE_FILTERS or globs)
+
+    def _walk_ids(self, conn: Any, filters: Filters, offset: int, limit: int) -> list[int] | None:
+        """The page's ids from the top rows of the (snr desc, id desc) order, read from
+        WALK_INDEX alone; None when those rows hold fewer than offset + limit matches."""
+        snr, ident = detections.c.snr, detections.c.id
+        hint = f"INDEXED BY {WALK_INDEX}"
+        span = max(WALK_ROWS, WALK_FACTOR * (offset + limit))
+        edge = conn.execute(
+            select(snr)
+            .with_hint(detections, hint, "sqlite")
+            .order_by(snr.desc(), ident.desc())
+            .limit(1)
+            .offset(span)
+        ).first()
+        stmt = select(ident).where(*self._where(filters)).with_hint(detections, hint, "sqlite")
+        if edge is not None:
+            if edge[0] is None:
+                return None  # the span reaches the NULL S/N rows: no simple bound
+            # a prefix of the order (ties at the edge included): its first matches are the page
+            stmt = stmt.where(snr >= edge[0])
+        stmt = stmt.order_by(snr.desc(), ident.desc()).limit(limit).offset(offset)
+        ids = [int(i) for i in conn.execute(stmt).scalars()]
+        if edge is None or len(ids) == limit:
+            return ids  # the whole table was walked, or the page is full
+        return None
 
     def _after(self, conn: Any, sort: str, descending: bool, after_id: int) -> ColumnElement[bool]:
         """Keyset condition: rows strictly after detection ``after_id`` in (sort, id) order,
@@ -115,11 +191,16 @@ class QueryMixin:
         the last record of the previous page continues from there (keyset: for scrolling)."""
         if offset < 0 or not 0 < limit <= MAX_LIMIT:
             raise FilterError(f"page: offset must be >= 0 and limit in 1..{MAX_LIMIT}")
-        ids_stmt = self._id_select(filters, sort, descending).limit(limit).offset(offset)
+        walk = after is None and self._walks(filters, sort, descending, offset + limit)
         with self._reader.connect() as conn:
-            if after is not None:
-                ids_stmt = ids_stmt.where(self._after(conn, sort, descending, int(after)))
-            ids = [int(i) for i in conn.execute(ids_stmt).scalars()]
+            ids = self._walk_ids(conn, filters or Filters(), offset, limit) if walk else None
+            if ids is None:
+                # after a failed walk the matches are few: sort them, never walk further
+                ids_stmt = self._id_select(filters, sort, descending, no_index=walk)
+                ids_stmt = ids_stmt.limit(limit).offset(offset)
+                if after is not None:
+                    ids_stmt = ids_stmt.where(self._after(conn, sort, descending, int(after)))
+                ids = [int(i) for i in conn.execute(ids_stmt).scalars()]
             if not ids:
                 return []
             rows = conn.execute(RECORDS_BY_ID, {"ids": ids})
