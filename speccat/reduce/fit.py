@@ -161,6 +161,74 @@ def _gauss_funcs(
     return resid, jac
 
 
+def _plain(flat: np.ndarray, sign: np.ndarray) -> np.ndarray:
+    """Log-amplitude parameters (flattened rows) to plain ones: A = sign exp(a)."""
+    p = flat.reshape(sign.size, -1).copy()
+    p[:, 0] = sign * np.exp(np.minimum(p[:, 0], 700.0))
+    return p.ravel()
+
+
+def _log_funcs(
+    xs: np.ndarray, y: np.ndarray, sign: np.ndarray, npar: int, profile: str, calls: list[int]
+) -> tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]:
+    """Residual and column Jacobian of k components in [ln |A|, c, ...] (signs fixed)."""
+    k = sign.size
+    if profile == "gaussian":
+        plain_resid, jac = _gauss_funcs(xs, y, k)
+    else:
+
+        def plain_resid(flat: np.ndarray) -> np.ndarray:
+            return model(xs, flat.reshape(k, npar), profile) - y
+
+        def jac(flat: np.ndarray) -> np.ndarray:
+            return jacobian(xs, flat.reshape(k, npar), profile).T
+
+    def resid(flat: np.ndarray) -> np.ndarray:
+        calls[0] += 1
+        return plain_resid(_plain(flat, sign))
+
+    def log_jac(flat: np.ndarray) -> np.ndarray:
+        lin = _plain(flat, sign)
+        out = jac(lin).copy()
+        out[0::npar] *= lin[0::npar, None]  # d/da = A d/dA
+        return out
+
+    return resid, log_jac
+
+
+def _single_log_funcs(
+    xs: np.ndarray, y: np.ndarray, sign: float, calls: list[int]
+) -> tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]:
+    """Residual and column Jacobian of one Gaussian in [ln |A|, c, ln s] (sign fixed): the
+    hot path of the reduction, kept to a handful of numpy calls per evaluation."""
+    last: list[object] = [None, None, None, 0.0]  # params, f, t, s
+
+    def resid(flat: np.ndarray) -> np.ndarray:
+        calls[0] += 1
+        a, cen, u = flat.tolist()
+        s1 = math.exp(min(max(u, -12.0), 30.0))
+        t = (xs - cen) * (1.0 / s1)
+        f = np.exp(-0.5 * t * t)
+        f *= sign * math.exp(min(a, 700.0))
+        last[:] = [(a, cen, u), f, t, s1]
+        return np.asarray(f - y)
+
+    def jac(flat: np.ndarray) -> np.ndarray:
+        if last[0] != tuple(flat.tolist()):
+            resid(flat)
+            calls[0] -= 1
+        f, t, s1 = last[1], last[2], last[3]
+        assert isinstance(f, np.ndarray) and isinstance(t, np.ndarray)
+        out = np.empty((3, xs.size))
+        out[0] = f  # d/d ln|A| = A g
+        np.multiply(f, t, out=out[2])
+        np.multiply(out[2], 1.0 / float(s1), out=out[1])  # type: ignore[arg-type]
+        out[2] *= t
+        return out
+
+    return resid, jac
+
+
 def fit_components(
     x: np.ndarray, y: np.ndarray, p0: np.ndarray, profile: str, maxfev: int = 200
 ) -> GroupFit:
@@ -172,7 +240,7 @@ def fit_components(
     covariance is then evaluated in the plain parameters [A, c, ...] at the solution.
     """
     k, npar = p0.shape
-    x0 = float(np.mean(x))
+    x0 = 0.5 * float(x[0] + x[-1]) if x.size else 0.0
     start = p0.copy()
     start[:, 1] -= x0
     sign = np.where(p0[:, 0] >= 0.0, 1.0, -1.0)
@@ -180,31 +248,10 @@ def fit_components(
     start[:, 0] = np.log(np.maximum(np.abs(p0[:, 0]), tiny))
     xs = x - x0
     calls = [0]
-    if profile == "gaussian":
-        plain_resid, jac = _gauss_funcs(xs, y, k)
+    if profile == "gaussian" and k == 1:
+        resid, log_jac = _single_log_funcs(xs, y, float(sign[0]), calls)
     else:
-
-        def plain_resid(flat: np.ndarray) -> np.ndarray:
-            return model(xs, flat.reshape(k, npar), profile) - y
-
-        def jac(flat: np.ndarray) -> np.ndarray:
-            return jacobian(xs, flat.reshape(k, npar), profile).T
-
-    def plain(flat: np.ndarray) -> np.ndarray:
-        p = flat.reshape(k, npar).copy()
-        p[:, 0] = sign * np.exp(np.minimum(p[:, 0], 700.0))
-        return p.ravel()
-
-    def resid(flat: np.ndarray) -> np.ndarray:
-        calls[0] += 1
-        return plain_resid(plain(flat))
-
-    def log_jac(flat: np.ndarray) -> np.ndarray:
-        lin = plain(flat)
-        out = jac(lin).copy()
-        out[0::npar] *= lin[0::npar, None]  # d/da = A d/dA
-        return out
-
+        resid, log_jac = _log_funcs(xs, y, sign, npar, profile, calls)
     with np.errstate(all="ignore"):
         with warnings.catch_warnings():  # ier says whether it converged; no warning wanted
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -213,8 +260,9 @@ def fit_components(
                 maxfev=_budget(maxfev, x.size, p0.size, profile),
             )  # fmt: skip
         r = resid(sol_log)
-        sol = plain(sol_log)
-        jm = jac(sol)
+        sol = _plain(sol_log, sign)
+        jm = log_jac(sol_log)
+        jm[0::npar] /= np.where(sol[0::npar] != 0, sol[0::npar], 1.0)[:, None]  # d/dA
     work = WORK.get()
     if work is not None:
         per_call = x.size * p0.size * (1.0 if profile == "gaussian" else 5.0) + 5000.0
@@ -225,7 +273,7 @@ def fit_components(
         cov = _inverse(jm @ jm.T) * (rss / dof)
     params = sol.reshape(k, npar).copy()
     params[:, 1] += x0
-    ok = bool(ier in (1, 2, 3, 4) and np.all(np.isfinite(params)) and np.all(np.isfinite(cov)))
+    ok = bool(ier in (1, 2, 3, 4) and np.isfinite(params).all() and np.isfinite(cov).all())
     return GroupFit(params, cov, rss, dof, profile, ok)
 
 
@@ -241,11 +289,11 @@ def _inverse(matrix: np.ndarray) -> np.ndarray:
     """Inverse of the normal matrix; pseudo-inverse when it is singular or ill-conditioned;
     all-infinite (no usable errors, so the caller rejects the fit) when the matrix itself is
     not finite or no decomposition converges (a run-away amplitude overflows the Jacobian)."""
-    if not np.all(np.isfinite(matrix)):
+    if not np.isfinite(matrix).all():
         return np.full_like(matrix, np.inf)
     try:
         out = np.linalg.inv(matrix)
-        if np.all(np.isfinite(out)) and np.all(np.diag(out) >= 0):
+        if np.isfinite(out).all() and (out.diagonal() >= 0).all():
             return out
     except np.linalg.LinAlgError:
         pass
