@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
-import scipy.linalg
 import scipy.optimize
+from scipy.linalg.lapack import dtrtrs
 
 from speccat.reduce.noise import robust_rms
 
@@ -121,7 +121,7 @@ def fit_linear(
         chol = np.linalg.cholesky(gram)
     except np.linalg.LinAlgError:  # degenerate columns (e.g. ripple aliasing): regularise
         chol = np.linalg.cholesky(gram + np.eye(gram.shape[0]) * 1e-9 * max(np.trace(gram), 1.0))
-    w = scipy.linalg.solve_triangular(chol, design.T @ yg, lower=True, check_finite=False)
+    w = dtrtrs(chol, design.T @ yg, lower=1)[0]
     rss_all = float(np.dot(yg, yg)) - np.cumsum(w**2)
     n_cols = np.arange(1, design.shape[1] + 1)
     if fixed_order is None:
@@ -133,9 +133,7 @@ def fit_linear(
     else:
         k = design.shape[1] - 1
         best_bic = float(m * np.log(max(rss_all[k], 1e-300) / m) + (k + 1) * np.log(m))
-    beta = scipy.linalg.solve_triangular(
-        chol[: k + 1, : k + 1].T, w[: k + 1], lower=False, check_finite=False
-    )
+    beta = dtrtrs(chol[: k + 1, : k + 1], w[: k + 1], lower=1, trans=1)[0]
     leg = beta[n_rip:]
     poly = design[:, n_rip : k + 1] @ leg
     coeffs = _leg_to_power(leg.size) @ leg
@@ -165,7 +163,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     nfft, inner = _ripple_grid(n)
     if inner.size == 0:
         return 0.0
-    spec = scipy.fft.rfft(r, nfft)
+    spec = np.fft.rfft(r, nfft)
     power = (spec.real**2 + spec.imag**2) / (m * sigma**2)
     level = np.log(max(float(inner.size), 1.0) / false_alarm)
     at = power[inner]

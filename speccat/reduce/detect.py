@@ -98,11 +98,11 @@ def filter_bank(
         )
     if not plan.parts:
         return out
-    spec = scipy.fft.rfft(resid, plan.nfft)
+    spec = np.fft.rfft(resid, plan.nfft)
     for d, idx, trans, norms in plan.parts:
         m = plan.nfft // d
         n_out = -(-n // d)
-        filtered = scipy.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)[:, :n_out]
+        filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)[:, :n_out]
         filtered /= (d * rms * np.sqrt(norms * corr[idx]))[:, None]
         for row, j in enumerate(idx):
             out[j] = (filtered[row], d)

@@ -6,6 +6,7 @@ Component parameter rows are [A, c, ln s] (Gaussian: peak, centre, sigma; channe
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -71,9 +72,17 @@ def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
 
 def window(params: np.ndarray, n: int) -> tuple[int, int]:
     """Fit window [lo, hi): +/- 4 sigma around the components, with spare channels."""
-    cen, sig = params[:, 1], reach_sigma(params)
-    lo = int(np.floor(np.min(cen - 4.0 * sig)))
-    hi = int(np.ceil(np.max(cen + 4.0 * sig))) + 1
+    if params.shape[0] == 1:  # the common case, in floats
+        row = params[0].tolist()
+        sig1 = math.exp(min(max(row[2], -30.0), 30.0))
+        if len(row) == 4:
+            sig1 += 2.0 * math.exp(min(max(row[3], -30.0), 30.0))
+        lo = math.floor(row[1] - 4.0 * sig1)
+        hi = math.ceil(row[1] + 4.0 * sig1) + 1
+    else:
+        cen, sig = params[:, 1], reach_sigma(params)
+        lo = int(np.floor(np.min(cen - 4.0 * sig)))
+        hi = int(np.ceil(np.max(cen + 4.0 * sig))) + 1
     need = params.size + 3
     while hi - lo < need:
         lo, hi = lo - 1, hi + 1
@@ -82,13 +91,12 @@ def window(params: np.ndarray, n: int) -> tuple[int, int]:
 
 def model_snr(params: np.ndarray, noise: Noise, n: int, profile: str) -> np.ndarray:
     """Matched-filter S/N of each component: |model| / (rms sqrt(correlation factor))."""
-    chan = np.arange(n, dtype=float)
     out = np.empty(params.shape[0])
+    cf = correlation_factor(noise.rho, np.exp(params[:, 2]))
     for i, p in enumerate(params):
         lo, hi = window(p[None, :], n)
-        m = model(chan[lo:hi], p[None, :], profile)
-        cf = correlation_factor(noise.rho, np.exp(p[2]))[0]
-        out[i] = np.sqrt(np.dot(m, m) / cf) / noise.rms
+        m = model(np.arange(lo, hi, dtype=float), p[None, :], profile)
+        out[i] = np.sqrt(np.dot(m, m) / cf[i]) / noise.rms
     return out
 
 

@@ -90,8 +90,8 @@ def correlation_factor(rho: np.ndarray, sigma_chan: np.ndarray | float) -> np.nd
     exp(-l^2/(4 s^2)); the filtered variance is sigma^2 sum k^2 times this factor (>= 0.05).
     """
     s = np.atleast_1d(np.asarray(sigma_chan, dtype=float))
-    lags = np.arange(1, rho.size + 1, dtype=float)
-    if not np.any(rho):
+    if not rho.any():
         return np.ones_like(s)
+    lags = np.arange(1, rho.size + 1, dtype=float)
     weights = np.exp(-(lags[None, :] ** 2) / (4.0 * s[:, None] ** 2))
     return np.maximum(1.0 + 2.0 * weights @ rho, 0.05)
