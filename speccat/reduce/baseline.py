@@ -96,33 +96,48 @@ def _design(n: int, order: int, period: float) -> np.ndarray:
 
 
 def fit_linear(
-    y: np.ndarray, good: np.ndarray, max_order: int, fixed_order: int | None, period: float
+    y: np.ndarray,
+    good: np.ndarray,
+    max_order: int,
+    fixed_order: int | None,
+    period: float,
+    sums: tuple[np.ndarray, float] | None = None,
 ) -> tuple[BaselineFit, float]:
     """Least-squares baseline on ``good`` channels; returns the fit and its BIC.
 
     Normal equations in the (well-conditioned) Legendre basis, Cholesky factor G = L L^T:
     with w = L^-1 A^T y the RSS of the first k columns is |y|^2 - sum_(j<k) w_j^2.
+    Without a ripple, ``sums`` = (P^T y, |y|^2) over every channel (``legendre_sums``) lets
+    the good-channel sums be formed from the few excluded channels alone; ``y`` must then be
+    finite everywhere.
     """
     n = y.size
-    m = int(good.sum())
+    m = int(np.count_nonzero(good))
     n_rip = 2 if period > 0 else 0
     top = max_order if fixed_order is None else fixed_order
     top = max(0, min(top, m - n_rip - 2))
     design = _design(n, top, period)
-    bad = ~good
-    yg = np.where(good, y, 0.0)
     if period <= 0:  # cached Gram matrix minus the few excluded rows
+        bad = np.flatnonzero(~good)
         a_bad = design[bad]
         gram = _gram(n, top) - a_bad.T @ a_bad
+        if sums is None:
+            sums = legendre_sums(np.where(good, y, 0.0), top)
+            bad = bad[:0]
+        y_bad = y[bad]
+        rhs = sums[0][: top + 1] - a_bad[: y_bad.size].T @ y_bad
+        yy = sums[1] - float(np.dot(y_bad, y_bad))
     else:
         a = design[good]
         gram = a.T @ a
+        yg = np.where(good, y, 0.0)
+        rhs, yy = design.T @ yg, float(np.dot(yg, yg))
     try:
         chol = np.linalg.cholesky(gram)
     except np.linalg.LinAlgError:  # degenerate columns (e.g. ripple aliasing): regularise
         chol = np.linalg.cholesky(gram + np.eye(gram.shape[0]) * 1e-9 * max(np.trace(gram), 1.0))
-    w = dtrtrs(chol, design.T @ yg, lower=1)[0]
-    rss_all = float(np.dot(yg, yg)) - np.cumsum(w**2)
+    w = dtrtrs(chol, rhs, lower=1)[0]
+    rss_all = yy - np.cumsum(w**2)
     n_cols = np.arange(1, design.shape[1] + 1)
     if fixed_order is None:
         first = n_rip  # the ripple columns are always in
@@ -145,6 +160,11 @@ def fit_linear(
         ripple, amp, phase = np.zeros(n), 0.0, 0.0
     fit = BaselineFit(np.asarray(coeffs), amp, period if n_rip else 0.0, phase, poly, ripple)
     return fit, best_bic
+
+
+def legendre_sums(y: np.ndarray, order: int) -> tuple[np.ndarray, float]:
+    """(P_0..P_order)^T y and |y|^2 over every channel, for ``fit_linear``."""
+    return _legendre_design(y.size, order).T @ y, float(np.dot(y, y))
 
 
 def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: float) -> float:
@@ -268,13 +288,15 @@ def fit_baseline(
     """
     free = valid & ~line_mask
     good = free.copy() if start is None else start[0] & free
+    y = np.where(valid, y, 0.0)
+    sums = legendre_sums(y, max(max_order, fixed_order or 0, 1))
     if good.sum() < 8:
         good = valid.copy()
     period = 0.0 if start is None or not ripple else start[1]
     # a cold start clips against a straight line first: a high-order polynomial fitted to
     # every channel would follow a wide line (e.g. a 21 cm galaxy profile) and hide it
     first = fixed_order if fixed_order is not None or start is not None else min(max_order, 1)
-    fit, _ = fit_linear(y, good, max_order, first, period)
+    fit, _ = fit_linear(y, good, max_order, first, period, sums)
     tolerance = max(2, int(0.002 * y.size))
     changed_before = True
     for it in range(max_iter):
@@ -299,5 +321,5 @@ def fit_baseline(
         if changed <= tolerance and new_period == period and (it > 0 or start is not None):
             break
         good, period = new_good, new_period
-        fit, _ = fit_linear(y, good, max_order, fixed_order, period)
+        fit, _ = fit_linear(y, good, max_order, fixed_order, period, sums)
     return fit, good
