@@ -15,13 +15,19 @@ import contextlib
 import csv
 import importlib
 import io
+import itertools
 import json
 import math
+import multiprocessing
+import operator
 import os
 import re
 import tempfile
+import threading
 import warnings
+from collections import deque
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from concurrent.futures import Future, ProcessPoolExecutor
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -170,17 +176,26 @@ def _ecsv_cell(value: Any) -> str:
 
 
 # ---- writers: ``rows`` are sequences aligned with ``columns`` ------------------------------
+_CHUNK = 5000  # rows formatted per call of the csv writer
+
+
 def write_csv(
     out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
-    # the csv module writes None as an empty field and floats with repr: exact, and all in C
+    csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
+    return _csv_rows(out, rows, len(columns))
+
+
+def _csv_rows(out: IO[str], rows: Iterable[Sequence[Any]], width: int) -> int:
+    # the csv module writes None as an empty field and floats with repr (exact), all in C;
+    # rows go to it a chunk at a time, cut to the output columns by a C-level map
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow([c.name for c in columns])
-    width = len(columns)
+    cut = operator.itemgetter(slice(0, width))
+    it = iter(rows)
     n = 0
-    for values in rows:
-        writer.writerow(values[:width])
-        n += 1
+    while chunk := list(itertools.islice(it, _CHUNK)):
+        writer.writerows(map(cut, chunk))
+        n += len(chunk)
     return n
 
 
@@ -341,9 +356,11 @@ def export(
     sort: str = "detection_id",
     descending: bool = False,
     batch: int = 5000,
+    jobs: int | None = None,
 ) -> int:
     """Write every detection matching ``filters`` to ``path`` (format from its suffix);
-    returns the number of rows written."""
+    returns the number of rows written. A large CSV of a SQLite archive in id order is
+    formatted by ``jobs`` worker processes (default: one per CPU, see ``export_workers``)."""
     target = Path(path)
     fmt = format_for(target)
     db_file = sqlite_path(archive.target)
@@ -357,6 +374,12 @@ def export(
     units = archive.intensity_units(filters)
     columns = export_columns(derived, units[0] if len(units) == 1 else None)
     meta = provenance(archive.url, filters)
+    pieces = None
+    if fmt == "csv" and not derived and sort == "detection_id" and not descending:
+        pieces = _pieces(archive, filters, export_workers(jobs))
+    if pieces is not None:
+        with atomic_output(target, force) as out:
+            return _write_csv_parallel(out, archive.target, filters, columns, *pieces)
     rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch
     )
@@ -364,3 +387,86 @@ def export(
         rows = with_derived(rows)
     with atomic_output(target, force) as out:
         return WRITERS[fmt](out, rows, columns, meta)
+
+
+# ---- parallel CSV ------------------------------------------------------------------------------
+# Formatting floats (repr) and building the rows' Python objects is CPU-bound, so a large CSV
+# export of a SQLite archive is cut into detection-id ranges that worker processes read (each
+# with its own read-only connection) and format; the parent writes the pieces in id order,
+# holding at most two pieces per worker (flat memory). Rows and bytes are those of the
+# sequential path.
+PARALLEL_MIN_ROWS = 200_000  # fewer matching rows: one process
+PIECE_IDS = 25_000  # detection ids per piece
+MAX_JOBS = 4
+_WORKER_ARCHIVES: dict[str, Archive] = {}
+
+
+def export_workers(jobs: int | None) -> int:
+    """Worker processes for a parallel export: ``jobs`` when given, else one per CPU (at most
+    MAX_JOBS) when the process may fork safely (one thread: never from inside the TUI)."""
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return 1
+    if jobs is not None:
+        return max(1, jobs)
+    if threading.active_count() > 1:
+        return 1
+    return min(MAX_JOBS, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else 1)
+
+
+def _pieces(
+    archive: Archive, filters: Filters, workers: int
+) -> tuple[list[tuple[int, int]], int] | None:
+    """(id ranges, workers) for a parallel CSV export, or None for the sequential path."""
+    if workers < 2 or sqlite_path(archive.target) is None:
+        return None
+    if archive.count(filters) < PARALLEL_MIN_ROWS:
+        return None
+    bounds = archive.id_bounds(filters)
+    if bounds is None:
+        return None
+    lo, hi = bounds
+    return [(a, min(a + PIECE_IDS, hi + 1)) for a in range(lo, hi + 1, PIECE_IDS)], workers
+
+
+def _csv_piece(
+    target: str, filters: Filters, id_range: tuple[int, int], width: int
+) -> tuple[int, str]:
+    """Worker: (rows, CSV text) of the matching rows with ids in ``id_range``."""
+    archive = _WORKER_ARCHIVES.get(target)
+    if archive is None:
+        archive = _WORKER_ARCHIVES[target] = Archive.open(target, readonly=True)
+    buf = io.StringIO()
+    rows = (v for chunk in archive.iter_value_chunks(filters, id_range=id_range) for v in chunk)
+    n = _csv_rows(buf, rows, width)
+    return n, buf.getvalue()
+
+
+def _write_csv_parallel(
+    out: IO[str],
+    target: str,
+    filters: Filters,
+    columns: Sequence[Column],
+    ranges: list[tuple[int, int]],
+    workers: int,
+) -> int:
+    csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
+    width = len(columns)
+    context = multiprocessing.get_context("fork")
+    n = 0
+    with ProcessPoolExecutor(workers, mp_context=context) as pool:
+        todo = iter(ranges)
+        pending: deque[Future[tuple[int, str]]] = deque(
+            pool.submit(_csv_piece, target, filters, r, width)
+            for r in itertools.islice(todo, 2 * workers)
+        )
+        try:
+            while pending:
+                rows, text = pending.popleft().result()
+                out.write(text)
+                n += rows
+                for r in itertools.islice(todo, 1):
+                    pending.append(pool.submit(_csv_piece, target, filters, r, width))
+        except BaseException:
+            pool.shutdown(wait=True, cancel_futures=True)
+            raise
+    return n

@@ -19,6 +19,7 @@ from __future__ import annotations
 import json
 from collections.abc import Iterator
 from dataclasses import asdict
+from datetime import datetime
 from typing import Any
 
 from sqlalchemy import ColumnElement, Select, and_, func, or_, select
@@ -35,7 +36,6 @@ from speccat.archive.records import (
     StoredSpectrum,
     record_select,
     to_record,
-    to_values,
 )
 from speccat.archive.schema import (
     WALK_INDEX,
@@ -227,30 +227,57 @@ class QueryMixin:
     ) -> Iterator[list[Any]]:
         """Like ``iter_detections`` but each record as a list in ``RECORD_NAMES`` order
         (the export's fast path)."""
-        stmt = record_select().where(*self._where(filters)).order_by(*self._order(sort, descending))
-        batch = max(1, batch)
-        if sort == "detection_id":
-            # keyset chunks over the primary key, one short read transaction each, so a long
-            # export never pins the SQLite WAL while an ingest is writing
-            ident = detections.c.id
-            last: int | None = None
-            while True:
-                chunk = (
-                    stmt
-                    if last is None
-                    else stmt.where(ident < last if descending else ident > last)
-                )
-                with self._reader.connect() as conn:
-                    rows = conn.execute(chunk.limit(batch)).all()
-                for row in rows:
-                    yield to_values(row)
-                if len(rows) < batch:
-                    return
-                last = int(rows[-1][0])
+        for chunk in self.iter_value_chunks(filters, sort, descending, batch):
+            yield from chunk
+
+    def id_bounds(self, filters: Filters | None = None) -> tuple[int, int] | None:
+        """(smallest, largest) id of the matching detections; None when nothing matches."""
+        ident = detections.c.id
+        stmt = select(func.min(ident), func.max(ident)).where(*self._where(filters))
         with self._reader.connect() as conn:
-            result = conn.execution_options(yield_per=batch).execute(stmt)
-            for row in result:
-                yield to_values(row)
+            lo, hi = conn.execute(stmt).one()
+        return None if lo is None else (int(lo), int(hi))
+
+    def iter_value_chunks(
+        self,
+        filters: Filters | None = None,
+        sort: str = "detection_id",
+        descending: bool = False,
+        batch: int = 5000,
+        id_range: tuple[int, int] | None = None,
+    ) -> Iterator[list[list[Any]]]:
+        """``iter_values`` in lists of up to ``batch`` records, optionally only detection ids
+        ``lo <= id < hi`` (``id_range``). In id order the rows come straight from the DB-API
+        cursor (no per-value result processing: MHz are computed in SQL, times made ISO here),
+        in keyset chunks over the primary key, one short read transaction each, so a long
+        export never pins the SQLite WAL while an ingest writes."""
+        stmt = _VALUES_SELECT.where(*self._where(filters)).order_by(*self._order(sort, descending))
+        if id_range is not None:
+            stmt = stmt.where(detections.c.id >= id_range[0], detections.c.id < id_range[1])
+        batch = max(1, batch)
+        if sort != "detection_id":
+            with self._reader.connect() as conn:
+                result = conn.execution_options(yield_per=batch).execute(stmt)
+                for part in result.partitions(batch):
+                    yield _values(part)
+            return
+        ident = detections.c.id
+        last: int | None = None
+        while True:
+            chunk = (
+                stmt if last is None else stmt.where(ident < last if descending else ident > last)
+            )
+            with self._reader.connect() as conn:
+                result = conn.execute(chunk.limit(batch))
+                try:
+                    rows = result.cursor.fetchall()
+                finally:
+                    result.close()
+            if rows:
+                yield _values(rows)
+            if len(rows) < batch:
+                return
+            last = int(rows[-1][0])
 
     def distinct(self, column: str) -> list[str]:
         """Sorted distinct non-empty values of source, species, line, night, kind or stokes."""
@@ -409,3 +436,41 @@ def _line_fit(m: Any) -> LineFit:
         blend=int(m["blend"]),
         flags=tuple(x for x in m["fit_flags"].split(";") if x),
     )
+
+
+def _values_select() -> Select[Any]:
+    """``record_select`` with the MHz columns divided in SQL: an IEEE double division on both
+    engines, so the very doubles that ``to_values`` computes in Python."""
+    cols = []
+    for name in RECORD_NAMES:
+        col = SQL_COLUMNS[name]
+        cols.append((col / 1e6 if name in _MHZ_NAMES else col).label(name))
+    return select(*cols).select_from(_JOINED)
+
+
+_MHZ_NAMES = frozenset({"rest_freq_mhz", "obs_freq_mhz"})
+_TIME_AT = RECORD_NAMES.index("obs_time")
+_VALUES_SELECT = _values_select()
+
+
+def _values(rows: Any) -> list[list[Any]]:
+    """DB-API rows of ``_VALUES_SELECT`` as export value lists: ``obs_time`` (text on SQLite,
+    a datetime on PostgreSQL) as ISO 8601, like ``to_values``; a spectrum's detections share
+    one time, so each distinct time is converted once."""
+    out = []
+    raw_seen: Any = None
+    iso = None
+    for row in rows:
+        values = list(row)
+        raw = values[_TIME_AT]
+        if raw is not None:
+            if raw != raw_seen:
+                raw_seen, iso = raw, _iso(raw)
+            values[_TIME_AT] = iso
+        out.append(values)
+    return out
+
+
+def _iso(raw: str | datetime) -> str:
+    stamp = raw if isinstance(raw, datetime) else datetime.fromisoformat(raw)
+    return stamp.isoformat()
