@@ -41,12 +41,14 @@ def robust_rms(values: np.ndarray) -> float:
     sigma = MAD_TO_SIGMA * median(np.abs(seed - med))
     if sigma <= 0:
         sigma = float(np.std(v))
-    dev = np.abs(v - med)
+    dev2 = v - med
+    dev2 *= dev2
     for _ in range(2):
-        inside = dev[dev < 3.5 * sigma]
-        if inside.size < 3:
+        inside = dev2 < (3.5 * sigma) ** 2
+        count = int(np.count_nonzero(inside))
+        if count < 3:
             break
-        sigma = float(np.sqrt(np.dot(inside, inside) / inside.size) / TRUNCATED_STD_35)
+        sigma = float(np.sqrt(np.dot(dev2, inside) / count) / TRUNCATED_STD_35)
     return sigma
 
 
