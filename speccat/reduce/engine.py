@@ -174,9 +174,9 @@ def _simplest(
     if not fit.success:  # the kept fit gets the full budget, as every fit had before
         fit = fit_components(x, y, p0, profile)
     p = fit.params
-    wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))
-    runaway = (np.abs(_peaks(p, profile)) > PEAK_LIMIT * top) & _seen(x, p, wid)
-    if runaway.any():  # a lone component far above the data it sits on: no fit (dropped)
+    over = np.abs(_peaks(p, profile)) > PEAK_LIMIT * top
+    # a lone component far above the data it sits on: no fit (dropped)
+    if over.any() and (over & _seen(x, p, reach_sigma(np.where(np.isfinite(p), p, 0.0)))).any():
         return replace(fit, params=np.full_like(p, np.nan))
     return fit
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 import numpy as np
@@ -210,9 +211,9 @@ def _unresolved(comp: Component, isolated: np.ndarray, lo: int, noise: Noise) ->
 
 
 def _window(comp: Component, n: int, half_fwhm: float) -> tuple[int, int]:
-    lo = int(np.ceil(comp.center - half_fwhm * comp.fwhm))
-    hi = int(np.floor(comp.center + half_fwhm * comp.fwhm)) + 1
-    near = int(np.clip(np.rint(comp.center), 0, n - 1))
+    lo = math.ceil(comp.center - half_fwhm * comp.fwhm)
+    hi = math.floor(comp.center + half_fwhm * comp.fwhm) + 1
+    near = min(max(round(comp.center), 0), n - 1)
     lo, hi = max(min(lo, near), 0), min(max(hi, near + 1), n)
     return lo, hi
 
