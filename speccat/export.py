@@ -1,6 +1,7 @@
 """Writing detection records to CSV, ECSV, VOTable and JSON, streamed and atomically.
 
-Rows are written as they come from ``Archive.iter_detections`` (constant memory); the file is
+Rows are written as they come from the archive, a chunk at a time (constant memory; a large
+CSV of a SQLite archive is formatted by worker processes, see "parallel CSV"); the file is
 written under a temporary name in the target folder and renamed at the end, so a failed export
 leaves nothing behind, and an existing file is never replaced unless ``force``. Floats are
 written with ``repr`` (shortest text that reads back to the same float64); unknown values are
@@ -187,14 +188,18 @@ def write_csv(
 
 
 def _csv_rows(out: IO[str], rows: Iterable[Sequence[Any]], width: int) -> int:
+    it = iter(rows)
+    return _csv_chunks(out, iter(lambda: list(itertools.islice(it, _CHUNK)), []), width)
+
+
+def _csv_chunks(out: IO[str], chunks: Iterable[Sequence[Sequence[Any]]], width: int) -> int:
     # the csv module writes None as an empty field and floats with repr (exact), all in C;
-    # rows go to it a chunk at a time, cut to the output columns by a C-level map
+    # rows go to it a chunk at a time (cut to the output columns by a C-level map if longer)
     writer = csv.writer(out, lineterminator="\n")
     cut = operator.itemgetter(slice(0, width))
-    it = iter(rows)
     n = 0
-    while chunk := list(itertools.islice(it, _CHUNK)):
-        writer.writerows(map(cut, chunk))
+    for chunk in chunks:
+        writer.writerows(chunk if chunk and len(chunk[0]) == width else map(cut, chunk))
         n += len(chunk)
     return n
 
@@ -380,6 +385,13 @@ def export(
     if pieces is not None:
         with atomic_output(target, force) as out:
             return _write_csv_parallel(out, archive.target, filters, columns, *pieces)
+    if fmt == "csv" and not derived:
+        chunks = archive.iter_value_chunks(
+            filters, sort=sort, descending=descending, batch=batch, exported_only=True
+        )
+        with atomic_output(target, force) as out:
+            write_csv(out, (), columns, meta)
+            return _csv_chunks(out, chunks, len(columns))
     rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch
     )
@@ -436,8 +448,8 @@ def _csv_piece(
     if archive is None:
         archive = _WORKER_ARCHIVES[target] = Archive.open(target, readonly=True)
     buf = io.StringIO()
-    rows = (v for chunk in archive.iter_value_chunks(filters, id_range=id_range) for v in chunk)
-    n = _csv_rows(buf, rows, width)
+    chunks = archive.iter_value_chunks(filters, id_range=id_range, exported_only=True)
+    n = _csv_chunks(buf, chunks, width)
     return n, buf.getvalue()
 
 

@@ -17,17 +17,19 @@ some ranges). Both give the same rows.
 from __future__ import annotations
 
 import json
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import asdict
 from datetime import datetime
+from functools import cache
 from typing import Any
 
-from sqlalchemy import ColumnElement, Select, and_, func, or_, select
+from sqlalchemy import ColumnElement, Select, String, and_, case, func, or_, select
 from sqlalchemy.engine import Engine
 
 from speccat.archive.blobs import decode_data, decode_freq
 from speccat.archive.filters import Filters, clauses
 from speccat.archive.records import (
+    EXPORT_COLUMNS,
     JOINED_COLUMNS,
     RECORD_NAMES,
     RECORDS_BY_ID,
@@ -228,7 +230,7 @@ class QueryMixin:
         """Like ``iter_detections`` but each record as a list in ``RECORD_NAMES`` order
         (the export's fast path)."""
         for chunk in self.iter_value_chunks(filters, sort, descending, batch):
-            yield from chunk
+            yield from map(list, chunk)
 
     def id_bounds(self, filters: Filters | None = None) -> tuple[int, int] | None:
         """(smallest, largest) id of the matching detections; None when nothing matches."""
@@ -245,13 +247,21 @@ class QueryMixin:
         descending: bool = False,
         batch: int = 5000,
         id_range: tuple[int, int] | None = None,
-    ) -> Iterator[list[list[Any]]]:
-        """``iter_values`` in lists of up to ``batch`` records, optionally only detection ids
-        ``lo <= id < hi`` (``id_range``). In id order the rows come straight from the DB-API
-        cursor (no per-value result processing: MHz are computed in SQL, times made ISO here),
-        in keyset chunks over the primary key, one short read transaction each, so a long
-        export never pins the SQLite WAL while an ingest writes."""
-        stmt = _VALUES_SELECT.where(*self._where(filters)).order_by(*self._order(sort, descending))
+        exported_only: bool = False,
+    ) -> Iterator[list[Sequence[Any]]]:
+        """``iter_values`` in lists of up to ``batch`` records (tuples or lists: read only),
+        optionally only detection ids ``lo <= id < hi`` (``id_range``) and only the
+        EXPORT_COLUMNS (``exported_only``, a prefix of RECORD_NAMES). In id order the rows
+        come straight from the DB-API cursor (no per-value result processing: MHz, and on
+        SQLite the ISO times, are computed in SQL), in keyset chunks over the primary key, one
+        short read transaction each, so a long export never pins the SQLite WAL while an
+        ingest writes."""
+        select_values = _values_select(
+            "sqlite" if self.dialect == "sqlite" else "postgresql",
+            len(EXPORT_COLUMNS) if exported_only else len(RECORD_NAMES),
+        )
+        stmt = select_values.where(*self._where(filters)).order_by(*self._order(sort, descending))
+        plain = self.dialect == "sqlite"  # rows need no conversion
         if id_range is not None:
             stmt = stmt.where(detections.c.id >= id_range[0], detections.c.id < id_range[1])
         batch = max(1, batch)
@@ -259,7 +269,7 @@ class QueryMixin:
             with self._reader.connect() as conn:
                 result = conn.execution_options(yield_per=batch).execute(stmt)
                 for part in result.partitions(batch):
-                    yield _values(part)
+                    yield [tuple(r) for r in part] if plain else _values(part)
             return
         ident = detections.c.id
         last: int | None = None
@@ -270,11 +280,11 @@ class QueryMixin:
             with self._reader.connect() as conn:
                 result = conn.execute(chunk.limit(batch))
                 try:
-                    rows = result.cursor.fetchall()
+                    rows = list(result.cursor.fetchall())
                 finally:
                     result.close()
             if rows:
-                yield _values(rows)
+                yield rows if plain else _values(rows)
             if len(rows) < batch:
                 return
             last = int(rows[-1][0])
@@ -438,25 +448,39 @@ def _line_fit(m: Any) -> LineFit:
     )
 
 
-def _values_select() -> Select[Any]:
-    """``record_select`` with the MHz columns divided in SQL: an IEEE double division on both
-    engines, so the very doubles that ``to_values`` computes in Python."""
+@cache
+def _values_select(dialect: str, width: int) -> Select[Any]:
+    """``record_select`` of the first ``width`` RECORD_NAMES, with the MHz columns divided in SQL (an IEEE double division on both
+    engines: the very doubles that ``to_values`` computes in Python) and, on SQLite, the
+    stored time text ("YYYY-MM-DD HH:MM:SS[.ffffff]", as SQLAlchemy writes it) turned into
+    ``datetime.isoformat()`` text in SQL, so that the DB-API rows need no Python work."""
     cols = []
-    for name in RECORD_NAMES:
+    for name in RECORD_NAMES[:width]:
         col = SQL_COLUMNS[name]
-        cols.append((col / 1e6 if name in _MHZ_NAMES else col).label(name))
+        if name in _MHZ_NAMES:
+            col = col / 1e6
+        elif name == "obs_time" and dialect == "sqlite":
+            col = _sqlite_iso(col)
+        cols.append(col.label(name))
     return select(*cols).select_from(_JOINED)
+
+
+def _sqlite_iso(col: ColumnElement[Any]) -> ColumnElement[str]:
+    def part(*args: int) -> ColumnElement[str]:
+        return func.substr(col, *args, type_=String)
+
+    day_t = part(1, 10) + "T"
+    return case((part(20) == ".000000", day_t + part(12, 8)), else_=day_t + part(12))
 
 
 _MHZ_NAMES = frozenset({"rest_freq_mhz", "obs_freq_mhz"})
 _TIME_AT = RECORD_NAMES.index("obs_time")
-_VALUES_SELECT = _values_select()
 
 
-def _values(rows: Any) -> list[list[Any]]:
-    """DB-API rows of ``_VALUES_SELECT`` as export value lists: ``obs_time`` (text on SQLite,
-    a datetime on PostgreSQL) as ISO 8601, like ``to_values``; a spectrum's detections share
-    one time, so each distinct time is converted once."""
+def _values(rows: Any) -> list[Any]:
+    """Rows of ``_values_select("postgresql", ...)`` as export value lists: ``obs_time`` (a
+    datetime) as ISO 8601, like ``to_values``; a spectrum's detections share one time, so each
+    distinct time is converted once."""
     out = []
     raw_seen: Any = None
     iso = None

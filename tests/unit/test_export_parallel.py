@@ -6,12 +6,14 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+import archive_fixtures
 import pytest
 from archive_fixtures import fill_archive
 
 import speccat.export as ex
 from speccat.archive import Archive, Filters
 
+archive_url = archive_fixtures.archive_url  # a fresh archive URL on each engine
 FILTERS = [{}, {"snr": "20"}, {"source": "neb*"}, {"vel": "1e6:"}]
 
 
@@ -78,3 +80,36 @@ def test_failing_worker_leaves_no_file(
     ):
         ex.export(archive, Filters(), tmp_path / "half.csv", jobs=2)
     assert list(tmp_path.iterdir()) == []
+
+
+def test_streamed_records_equal_the_paged_ones(archive_url: str) -> None:
+    """``iter_detections`` (DB-API rows, MHz and ISO times made in SQL) gives the very records
+    of ``page`` (SQLAlchemy rows through ``to_record``), times with and without microseconds,
+    and no time at all, included."""
+    import dataclasses
+    from datetime import UTC, datetime
+
+    from archive_fixtures import make_file
+
+    from speccat.model import FileResult
+
+    stamps = [
+        datetime(2026, 3, 14, 21, 5, 7, 123456, tzinfo=UTC),
+        datetime(2026, 3, 14, 21, 5, 7, tzinfo=UTC),
+        datetime(2026, 3, 15, 0, 0, 0, 1, tzinfo=UTC),
+        None,
+    ]
+    with Archive.open(archive_url, create=True) as archive:
+        run_id = archive.begin_run({})
+        for seed, stamp in enumerate(stamps):
+            f = make_file(seed)
+            spectra = tuple(
+                dataclasses.replace(s, spectrum=dataclasses.replace(s.spectrum, obs_time=stamp))
+                for s in f.spectra
+            )
+            archive.store_file(run_id, FileResult(f.path, f.size_bytes, f.sha256, spectra), "n")
+        streamed = list(archive.iter_detections())
+        paged = archive.page(sort="detection_id", descending=False, limit=1000)
+    assert streamed == paged and len(paged) == 2 * 2 * len(stamps)
+    times = {r["obs_time"] for r in paged}
+    assert times == {None} | {s.replace(tzinfo=None).isoformat() for s in stamps if s}
