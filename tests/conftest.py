@@ -4,8 +4,12 @@ from __future__ import annotations
 
 import os
 
+# isort: off
+import speccat  # noqa: F401  (before numpy: single-threaded BLAS as in the CLI, DEVELOPERS.md)
 import numpy as np
 import pytest
+
+# isort: on
 
 os.environ.setdefault("TEXTUAL_ANIMATIONS", "none")
 
