@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.optimize
 import scipy.special
+from scipy.linalg.lapack import dpotrf, dpotri
 
 FWHM_PER_SIGMA = float(2.0 * np.sqrt(2.0 * np.log(2.0)))
 SQRT2PI = float(np.sqrt(2.0 * np.pi))
@@ -252,25 +253,24 @@ def fit_components(
         resid, log_jac = _single_log_funcs(xs, y, float(sign[0]), calls)
     else:
         resid, log_jac = _log_funcs(xs, y, sign, npar, profile, calls)
-    with np.errstate(all="ignore"):
-        with warnings.catch_warnings():  # ier says whether it converged; no warning wanted
-            warnings.simplefilter("ignore", RuntimeWarning)
-            sol_log, ier = scipy.optimize.leastsq(
-                resid, start.ravel(), Dfun=log_jac, col_deriv=True, ftol=1e-9, xtol=1e-9,
-                maxfev=_budget(maxfev, x.size, p0.size, profile),
-            )  # fmt: skip
+    # a run-away fit overflows; ier and _inverse say so, no warning wanted
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        sol_log, ier = scipy.optimize.leastsq(
+            resid, start.ravel(), Dfun=log_jac, col_deriv=True, ftol=1e-9, xtol=1e-9,
+            maxfev=_budget(maxfev, x.size, p0.size, profile),
+        )  # fmt: skip
         r = resid(sol_log)
         sol = _plain(sol_log, sign)
         jm = log_jac(sol_log)
         jm[0::npar] /= np.where(sol[0::npar] != 0, sol[0::npar], 1.0)[:, None]  # d/dA
+        rss = float(np.dot(r, r))
+        dof = max(x.size - sol.size, 1)
+        cov = _inverse(jm @ jm.T) * (rss / dof)
     work = WORK.get()
     if work is not None:
         per_call = x.size * p0.size * (1.0 if profile == "gaussian" else 5.0) + 5000.0
         work[0] += calls[0] * per_call  # + a constant for the Python overhead of each call
-    rss = float(np.dot(r, r))
-    dof = max(x.size - sol.size, 1)
-    with np.errstate(all="ignore"):  # a run-away fit overflows here; _inverse rejects it
-        cov = _inverse(jm @ jm.T) * (rss / dof)
     params = sol.reshape(k, npar).copy()
     params[:, 1] += x0
     ok = bool(ier in (1, 2, 3, 4) and np.isfinite(params).all() and np.isfinite(cov).all())
@@ -289,14 +289,16 @@ def _inverse(matrix: np.ndarray) -> np.ndarray:
     """Inverse of the normal matrix; pseudo-inverse when it is singular or ill-conditioned;
     all-infinite (no usable errors, so the caller rejects the fit) when the matrix itself is
     not finite or no decomposition converges (a run-away amplitude overflows the Jacobian)."""
-    if not np.isfinite(matrix).all():
+    if not math.isfinite(float(np.abs(matrix).sum())):
         return np.full_like(matrix, np.inf)
-    try:
-        out = np.linalg.inv(matrix)
-        if np.isfinite(out).all() and (out.diagonal() >= 0).all():
-            return out
-    except np.linalg.LinAlgError:
-        pass
+    factor, info = dpotrf(matrix, lower=0, clean=0)  # positive definite: the common case
+    if info == 0:
+        upper, info = dpotri(factor, lower=0)
+        if info == 0:
+            out = np.triu(upper)
+            out += np.triu(upper, 1).T
+            if math.isfinite(float(out.sum())):
+                return out
     try:
         return np.asarray(np.linalg.pinv(matrix, rcond=1e-12))
     except np.linalg.LinAlgError:
