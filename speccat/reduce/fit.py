@@ -197,37 +197,42 @@ def _log_funcs(
     return resid, log_jac
 
 
-def _single_log_funcs(
-    xs: np.ndarray, y: np.ndarray, sign: float, calls: list[int]
-) -> tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]:
+class _OneGaussian:
     """Residual and column Jacobian of one Gaussian in [ln |A|, c, ln s] (sign fixed): the
-    hot path of the reduction, kept to a handful of numpy calls per evaluation."""
-    last: list[object] = [None, None, None, 0.0]  # params, f, t, s
+    hot path of the reduction, a handful of numpy calls per evaluation. The last evaluation
+    is kept, so the Jacobian at a point just evaluated (and a repeated point) costs no exp."""
 
-    def resid(flat: np.ndarray) -> np.ndarray:
-        calls[0] += 1
-        a, cen, u = flat.tolist()
-        s1 = math.exp(min(max(u, -12.0), 30.0))
-        t = (xs - cen) * (1.0 / s1)
-        f = np.exp(-0.5 * t * t)
-        f *= sign * math.exp(min(a, 700.0))
-        last[:] = [(a, cen, u), f, t, s1]
-        return np.asarray(f - y)
+    def __init__(self, xs: np.ndarray, y: np.ndarray, sign: float, calls: list[int]) -> None:
+        self.xs, self.y, self.sign, self.calls = xs, y, sign, calls
+        self.key: tuple[float, ...] = ()
+        self.f = self.t = self.r = np.empty(0)
+        self.s1 = 1.0
 
-    def jac(flat: np.ndarray) -> np.ndarray:
-        if last[0] != tuple(flat.tolist()):
-            resid(flat)
-            calls[0] -= 1
-        f, t, s1 = last[1], last[2], last[3]
-        assert isinstance(f, np.ndarray) and isinstance(t, np.ndarray)
-        out = np.empty((3, xs.size))
-        out[0] = f  # d/d ln|A| = A g
-        np.multiply(f, t, out=out[2])
-        np.multiply(out[2], 1.0 / float(s1), out=out[1])  # type: ignore[arg-type]
-        out[2] *= t
+    def _at(self, flat: np.ndarray) -> None:
+        key = tuple(flat.tolist())
+        if key == self.key:
+            return
+        a, cen, u = key
+        self.s1 = math.exp(min(max(u, -12.0), 30.0))
+        self.t = (self.xs - cen) * (1.0 / self.s1)
+        self.f = np.exp(-0.5 * self.t * self.t)
+        self.f *= self.sign * math.exp(min(a, 700.0))
+        self.r = self.f - self.y
+        self.key = key
+        self.calls[0] += 1
+
+    def resid(self, flat: np.ndarray) -> np.ndarray:
+        self._at(flat)
+        return self.r
+
+    def jac(self, flat: np.ndarray) -> np.ndarray:
+        self._at(flat)
+        out = np.empty((3, self.xs.size))
+        out[0] = self.f  # d/d ln|A| = A g
+        np.multiply(self.f, self.t, out=out[2])
+        np.multiply(out[2], 1.0 / self.s1, out=out[1])
+        out[2] *= self.t
         return out
-
-    return resid, jac
 
 
 def fit_components(
@@ -249,10 +254,13 @@ def fit_components(
     start[:, 0] = np.log(np.maximum(np.abs(p0[:, 0]), tiny))
     xs = x - x0
     calls = [0]
+    funcs: tuple[Callable[[np.ndarray], np.ndarray], Callable[[np.ndarray], np.ndarray]]
     if profile == "gaussian" and k == 1:
-        resid, log_jac = _single_log_funcs(xs, y, float(sign[0]), calls)
+        one = _OneGaussian(xs, y, float(sign[0]), calls)
+        funcs = (one.resid, one.jac)
     else:
-        resid, log_jac = _log_funcs(xs, y, sign, npar, profile, calls)
+        funcs = _log_funcs(xs, y, sign, npar, profile, calls)
+    resid, log_jac = funcs
     # a run-away fit overflows; ier and _inverse say so, no warning wanted
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
