@@ -183,8 +183,12 @@ _CHUNK = 5000  # rows formatted per call of the csv writer
 def write_csv(
     out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
-    csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
+    _csv_header(out, columns)
     return _csv_rows(out, rows, len(columns))
+
+
+def _csv_header(out: IO[str], columns: Sequence[Column]) -> None:
+    csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
 
 
 def _csv_rows(out: IO[str], rows: Iterable[Sequence[Any]], width: int) -> int:
@@ -390,7 +394,7 @@ def export(
             filters, sort=sort, descending=descending, batch=batch, exported_only=True
         )
         with atomic_output(target, force) as out:
-            write_csv(out, (), columns, meta)
+            _csv_header(out, columns)
             return _csv_chunks(out, chunks, len(columns))
     rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch
@@ -461,7 +465,7 @@ def _write_csv_parallel(
     ranges: list[tuple[int, int]],
     workers: int,
 ) -> int:
-    csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
+    _csv_header(out, columns)
     width = len(columns)
     context = multiprocessing.get_context("fork")
     n = 0

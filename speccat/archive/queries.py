@@ -104,9 +104,14 @@ class QueryMixin:
             col = col.collate("C")  # byte order, as SQLite sorts: same pages on both engines
         return col
 
-    def count(self, filters: Filters | None = None) -> int:
-        """Number of detections matching ``filters``."""
-        stmt = select(func.count()).select_from(detections).where(*self._where(filters))
+    def count(self, filters: Filters | None = None, at_most: int | None = None) -> int:
+        """Number of detections matching ``filters``; with ``at_most``, counting stops past
+        that many (the result is then ``at_most + 1``: "more than at_most")."""
+        if at_most is not None:
+            found = select(detections.c.id).where(*self._where(filters)).limit(at_most + 1)
+            stmt = select(func.count()).select_from(found.subquery())
+        else:
+            stmt = select(func.count()).select_from(detections).where(*self._where(filters))
         with self._reader.connect() as conn:
             return int(conn.execute(stmt).scalar_one())
 
@@ -450,10 +455,11 @@ def _line_fit(m: Any) -> LineFit:
 
 @cache
 def _values_select(dialect: str, width: int) -> Select[Any]:
-    """``record_select`` of the first ``width`` RECORD_NAMES, with the MHz columns divided in SQL (an IEEE double division on both
-    engines: the very doubles that ``to_values`` computes in Python) and, on SQLite, the
-    stored time text ("YYYY-MM-DD HH:MM:SS[.ffffff]", as SQLAlchemy writes it) turned into
-    ``datetime.isoformat()`` text in SQL, so that the DB-API rows need no Python work."""
+    """``record_select`` of the first ``width`` RECORD_NAMES, with the MHz columns divided in
+    SQL (an IEEE double division on both engines: the very doubles that ``to_values``
+    computes in Python) and, on SQLite, the stored time text ("YYYY-MM-DD HH:MM:SS[.ffffff]",
+    as SQLAlchemy writes it) turned into ``datetime.isoformat()`` text in SQL, so that the
+    DB-API rows need no Python work."""
     cols = []
     for name in RECORD_NAMES[:width]:
         col = SQL_COLUMNS[name]

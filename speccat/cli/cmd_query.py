@@ -14,6 +14,9 @@ from speccat.config import load_settings
 NAME = "query"
 HELP = "list the archived detections that match the filters"
 ORDER = 30
+#: The table's "N of M" counts matches up to here (a full count of a broad filter over a
+#: million detections costs more than the page itself).
+COUNT_UP_TO = 100_000
 
 
 def _fixed(digits: int) -> Callable[[Any], str]:
@@ -85,11 +88,12 @@ def run(args: argparse.Namespace) -> int:
         rows = archive.page(
             filters, sort=args.sort, descending=not args.ascending, limit=args.limit
         )
-        total = archive.count(filters) if args.format == "table" else None
+        total = archive.count(filters, at_most=COUNT_UP_TO) if args.format == "table" else 0
     if args.format == "table":
         _print_table(rows, console())
+        of = f"more than {COUNT_UP_TO}" if total > COUNT_UP_TO else str(total)
         console(stderr=True).print(
-            f"{len(rows)} of {total} matching detections shown (v_LSR, FWHM in km/s)"
+            f"{len(rows)} of {of} matching detections shown (v_LSR, FWHM in km/s)"
         )
     else:
         write_records(rows, EXPORT_COLUMNS, args.format)

@@ -109,3 +109,14 @@ def test_version_1_archive_is_migrated_with_its_rows_kept(tmp_path: Path) -> Non
             version = conn.execute(text("SELECT version FROM schema_version")).scalar_one()
             names = set(conn.execute(text("SELECT name FROM sqlite_master")).scalars())
     assert version == SCHEMA_VERSION == 2 and WALK_INDEX in names
+
+
+def test_count_can_stop_early(filled_archive: Any) -> None:
+    archive, rows = filled_archive
+    f = Filters.parse({"vel": "-100:100"})
+    matching = sum(brute(f, r) for r in rows)
+    assert 10 < matching < len(rows)
+    assert archive.count(f) == matching
+    assert archive.count(f, at_most=10) == 11  # "more than 10"
+    assert archive.count(f, at_most=matching) == matching
+    assert archive.count(Filters.parse({"vel": "1e6:"}), at_most=10) == 0
