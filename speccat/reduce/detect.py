@@ -83,30 +83,136 @@ def _plan(n: int, sigmas: tuple[float, ...]) -> _Plan:
     return _Plan(tuple(taps), nfft, tuple(parts))
 
 
-def filter_bank(
-    resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarray
-) -> list[tuple[np.ndarray, int]]:
-    """S/N spectra ``z`` (one per kernel, decimated by ``d``): filtered / its own sigma."""
+@functools.lru_cache(maxsize=16)
+def _broad(n: int, sigmas: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Kernel indices, decimations and squared norms of the FFT (broad) kernels (cached)."""
+    parts = _plan(n, sigmas).parts
+    if not parts:
+        return np.zeros(0, dtype=int), np.zeros(0), np.zeros(0)
+    j = np.concatenate([idx for _, idx, _, _ in parts])
+    d = np.concatenate([np.full(idx.size, float(dd)) for dd, idx, _, _ in parts])
+    norm2 = np.concatenate([norms for _, _, _, norms in parts])
+    return j, d, norm2
+
+
+@dataclass(frozen=True)
+class Bank:
+    """The S/N spectra of every kernel, one flat array: scale j holds ``sizes[j]`` values from
+    ``starts[j]`` (channel i x ``decim[j]``), each scale followed by one zero separator."""
+
+    z: np.ndarray
+    starts: np.ndarray
+    sizes: np.ndarray
+    decim: np.ndarray
+
+    def scale(self, j: int) -> np.ndarray:
+        return self.z[self.starts[j] : self.starts[j] + self.sizes[j]]
+
+
+@functools.lru_cache(maxsize=16)
+def _layout(n: int, sigmas: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """starts, sizes and decimations of a bank (cached; read-only)."""
+    decim = np.array([_decimation(s) for s in sigmas])
+    sizes = -(-n // decim)
+    starts = np.concatenate(([0], np.cumsum(sizes + 1)[:-1]))
+    for arr in (starts, sizes, decim):
+        arr.flags.writeable = False
+    return starts, sizes, decim
+
+
+def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarray) -> Bank:
+    """S/N spectra of ``resid`` (one per kernel, decimated): filtered / its own sigma."""
     n = resid.size
-    plan = _plan(n, tuple(float(s) for s in sigmas))
+    key = tuple(float(s) for s in sigmas)
+    plan = _plan(n, key)
+    starts, sizes, decim = _layout(n, key)
+    z = np.zeros(int(starts[-1] + sizes[-1] + 1))
     corr = correlation_factor(rho, sigmas)
-    out: list[tuple[np.ndarray, int]] = [(np.empty(0), 1)] * sigmas.size
     for j, k, norm2 in plan.taps:
-        out[j] = (
-            scipy.ndimage.convolve1d(resid, k, mode="constant") / (rms * np.sqrt(norm2 * corr[j])),
-            1,
+        view = z[starts[j] : starts[j] + n]
+        scipy.ndimage.convolve1d(resid, k, output=view, mode="constant")
+        view /= rms * np.sqrt(norm2 * corr[j])
+    if plan.parts:
+        spec = np.fft.rfft(resid, plan.nfft)
+        for d, idx, trans, norms in plan.parts:
+            m = plan.nfft // d
+            filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)
+            filtered /= (d * rms * np.sqrt(norms * corr[idx]))[:, None]
+            for row, j in enumerate(idx):
+                z[starts[j] : starts[j] + sizes[j]] = filtered[row, : sizes[j]]
+    return Bank(z, starts, sizes, decim)
+
+
+#: Components narrower than this (channels) are not shifted analytically (``shift_bank``).
+SHIFT_MIN_SIGMA = 1.0
+#: Responses are evaluated within this many combined sigmas (exp(-32) beyond).
+SHIFT_REACH = 8.0
+
+
+def shift_bank(
+    bank: Bank,
+    sigmas: np.ndarray,
+    rms: float,
+    rho: np.ndarray,
+    valid: np.ndarray,
+    remove: np.ndarray,
+    restore: np.ndarray,
+) -> Bank | None:
+    """The bank of (r - model(remove) + model(restore)) from the bank of r, for Gaussian rows
+    [A, c, ln s]: filtering is linear, so each component's own response is subtracted (or
+    added back) where it is not negligible, instead of filtering the whole band again.
+
+    Narrow (undecimated) kernels convolve the component's sampled model exactly. A broad kernel
+    of sigma w answers a Gaussian of sigma s with A s / sqrt(s^2 + w^2) times a Gaussian of
+    sigma sqrt(s^2 + w^2) (its transfer function is that of a unit-area Gaussian), exact for
+    the sampled profile to exp(-2 pi^2 s^2 w^2 / (s^2 + w^2)) < 1e-7 when s >= 1 channel (the
+    Poisson summation formula). Returns None, and the caller filters afresh, when a component
+    is narrower than ``SHIFT_MIN_SIGMA``, not within the band to +/- 8 sigma or touches an
+    invalid channel there, since then the sampled model is not that Gaussian.
+    """
+    n = valid.size
+    key = tuple(float(s) for s in sigmas)
+    plan = _plan(n, key)
+    rows = np.concatenate((remove, restore))
+    if rows.shape[0] == 0:
+        return bank
+    sign = np.concatenate((-np.ones(remove.shape[0]), np.ones(restore.shape[0])))
+    sig = np.exp(rows[:, 2])
+    lo = np.floor(rows[:, 1] - SHIFT_REACH * sig).astype(int)
+    hi = np.ceil(rows[:, 1] + SHIFT_REACH * sig).astype(int) + 1
+    if rows.shape[1] != 3 or np.any(sig < SHIFT_MIN_SIGMA) or lo.min() < 0 or hi.max() > n:
+        return None
+    if not all(valid[a:b].all() for a, b in zip(lo.tolist(), hi.tolist(), strict=True)):
+        return None
+    corr = correlation_factor(rho, sigmas)
+    amp, cen = rows[:, 0] * sign, rows[:, 1]
+    z = bank.z.copy()
+    for c in range(rows.shape[0] if plan.taps else 0):  # narrow: exact convolutions
+        a, b = int(lo[c]), int(hi[c])
+        seg = amp[c] * np.exp(-0.5 * ((np.arange(a, b) - cen[c]) / sig[c]) ** 2)
+        for j, k, norm2 in plan.taps:
+            half = k.size // 2
+            first, stop = max(a - half, 0), min(b + half, n)
+            part = np.convolve(seg, k / (rms * np.sqrt(norm2 * corr[j])))
+            at = int(bank.starts[j])
+            z[at + first : at + stop] += part[first - a + half : stop - a + half]
+    j_b, d_b, norm_b = _broad(n, key)
+    if j_b.size:  # every (component, broad kernel) pair at once, analytic
+        comb = np.sqrt(sig[:, None] ** 2 + sigmas[j_b][None, :] ** 2)
+        scale = amp[:, None] * sig[:, None] / comb / (rms * np.sqrt(norm_b * corr[j_b]))[None, :]
+        reach = SHIFT_REACH * comb
+        k_lo = np.maximum(np.ceil((cen[:, None] - reach) / d_b), 0).astype(int)
+        k_hi = np.minimum(np.floor((cen[:, None] + reach) / d_b) + 1, bank.sizes[j_b]).astype(int)
+        count = np.maximum(k_hi - k_lo, 0).ravel()
+        pair = np.repeat(np.arange(count.size), count)
+        kk = k_lo.ravel()[pair] + np.arange(pair.size) - np.repeat(np.cumsum(count) - count, count)
+        col = pair % j_b.size
+        x = kk * d_b[col].astype(float)
+        resp = scale.ravel()[pair] * np.exp(
+            -0.5 * ((x - cen[pair // j_b.size]) / comb.ravel()[pair]) ** 2
         )
-    if not plan.parts:
-        return out
-    spec = np.fft.rfft(resid, plan.nfft)
-    for d, idx, trans, norms in plan.parts:
-        m = plan.nfft // d
-        n_out = -(-n // d)
-        filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)[:, :n_out]
-        filtered /= (d * rms * np.sqrt(norms * corr[idx]))[:, None]
-        for row, j in enumerate(idx):
-            out[j] = (filtered[row], d)
-    return out
+        np.add.at(z, bank.starts[j_b][col] + kk, resp)
+    return Bank(z, bank.starts, bank.sizes, bank.decim)
 
 
 def _peaks(u: np.ndarray, threshold: float) -> tuple[np.ndarray, np.ndarray]:
@@ -130,7 +236,7 @@ def _peaks(u: np.ndarray, threshold: float) -> tuple[np.ndarray, np.ndarray]:
 
 
 def find_seeds(
-    bank: list[tuple[np.ndarray, int]],
+    bank: Bank,
     sigmas: np.ndarray,
     rms: float,
     rho: np.ndarray,
@@ -150,18 +256,14 @@ def find_seeds(
     shadowed.
     """
     # all scales in one array, separated by a zero, so the peak search is one vectorised pass
-    sep = np.zeros(1)
-    flat_z = np.concatenate([part for z, _ in bank for part in (z, sep)])
-    sizes = np.array([z.size for z, _ in bank])
-    starts = np.concatenate(([0], np.cumsum(sizes + 1)[:-1]))
+    flat_z, starts, sizes = bank.z, bank.starts, bank.sizes
     top, shift = _peaks(np.abs(flat_z), threshold)
     if top.size == 0:
         return []
     j_all = np.searchsorted(starts, top, side="right") - 1
     local = top - starts[j_all]
     shift = np.where((local == 0) | (local == sizes[j_all] - 1), 0.0, shift)
-    decim = np.array([d for _, d in bank], dtype=float)[j_all]
-    p_all = (local + shift) * decim
+    p_all = (local + shift) * bank.decim[j_all]
     v_all = np.abs(flat_z[top])
     s_all = np.sign(flat_z[top])
     w_all = sigmas[j_all]
@@ -185,22 +287,19 @@ def find_seeds(
     return seeds
 
 
-def _refined_sigma(
-    bank: list[tuple[np.ndarray, int]], sigmas: np.ndarray, j: int, pos: float, sign: float
-) -> float:
+def _refined_sigma(bank: Bank, sigmas: np.ndarray, j: int, pos: float, sign: float) -> float:
     """Line sigma from the matched-filter S/N at ``pos`` on scales j-1, j, j+1.
 
     For a Gaussian line of sigma s, the S/N through a kernel of sigma w is proportional to
     sqrt(2 s w / (s^2 + w^2)), a function of ln(w/s) symmetric about 0; a parabola through
     the three scales in ln w puts its vertex at ln s (clamped to half a ladder step).
     """
-    if j == 0 or j == len(bank) - 1:
+    if j == 0 or j == bank.sizes.size - 1:
         return float(sigmas[j])
     vals = []
     for i in (j - 1, j, j + 1):
-        z, d = bank[i]
-        at = min(max(round(pos / d), 0), z.size - 1)
-        vals.append(sign * float(z[at]))
+        at = min(max(round(pos / int(bank.decim[i])), 0), int(bank.sizes[i]) - 1)
+        vals.append(sign * float(bank.z[bank.starts[i] + at]))
     lo, mid, hi = vals
     denom = lo - 2.0 * mid + hi
     if not denom < 0:

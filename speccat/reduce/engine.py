@@ -11,7 +11,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from speccat.reduce.detect import Seed, filter_bank, find_seeds
+from speccat.reduce.detect import SHIFT_REACH, Bank, Seed, filter_bank, find_seeds, shift_bank
 from speccat.reduce.fit import GroupFit, fit_components, model, over_budget
 from speccat.reduce.noise import correlation_factor
 from speccat.reduce.settings import ReduceSettings
@@ -293,21 +293,24 @@ def detect_and_fit(
     next to or under a fitted line (a blend) becomes a new component. Returns the surviving
     components and their fitted groups.
     """
-    n = resid.size
     profile = settings.profile
-    chan = np.arange(n, dtype=float)
     groups: list[Group] = []
     if params.shape[0]:
         groups = fit_groups(resid, valid, params, noise, settings, profile)
         params = stack(groups, params.shape[1])
+    base = np.where(valid, resid, 0.0)
+    bank: Bank | None = None
+    used = params
     for _ in range(settings.max_rounds):
         if over_budget():
             break
-        left = np.where(valid, resid, 0.0)
-        for p in params:  # subtract each component over its own window only
-            lo, hi = window(p[None, :], n)
-            left[lo:hi] -= np.where(valid[lo:hi], model(chan[lo:hi], p[None, :], profile), 0.0)
-        bank = filter_bank(left, sigmas, noise.rms, noise.rho)
+        if bank is not None and profile == "gaussian":  # the last bank, its model moved
+            bank = shift_bank(bank, sigmas, noise.rms, noise.rho, valid, params, used)
+        else:
+            bank = None
+        if bank is None:
+            bank = filter_bank(_left(base, valid, params, profile), sigmas, noise.rms, noise.rho)
+        used = params
         room = settings.max_lines - params.shape[0]
         reach = 3.0 if profile == "gaussian" else 5.0  # Lorentzian wings reach further
         seeds = find_seeds(bank, sigmas, noise.rms, noise.rho, settings.detect_sigma, room, reach)
@@ -320,3 +323,21 @@ def detect_and_fit(
             break  # the seeds were pruned again: nothing more to find
         params = new_params
     return params, groups
+
+
+def _left(base: np.ndarray, valid: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
+    """``base`` minus each component on the valid channels: a Gaussian within +/- 8 sigma
+    (``SHIFT_REACH``, as ``shift_bank`` assumes), a Voigt over its fit window."""
+    n = base.size
+    left = base.copy()
+    for p in params:
+        if profile == "gaussian":
+            sig = math.exp(min(max(float(p[2]), -12.0), 30.0))
+            lo = max(math.floor(p[1] - SHIFT_REACH * sig), 0)
+            hi = min(math.ceil(p[1] + SHIFT_REACH * sig) + 1, n)
+        else:
+            lo, hi = window(p[None, :], n)
+        if hi > lo:
+            mod = model(np.arange(lo, hi, dtype=float), p[None, :], profile)
+            left[lo:hi] -= np.where(valid[lo:hi], mod, 0.0)
+    return left
