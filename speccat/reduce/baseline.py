@@ -37,16 +37,31 @@ class BaselineFit:
         return self.poly + self.ripple
 
 
+def runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Start and end (exclusive) channels of every run of True in ``mask``."""
+    idx = np.flatnonzero(mask)
+    if idx.size == 0:
+        return idx, idx
+    brk = np.flatnonzero(np.diff(idx) > 1)
+    starts = idx[np.concatenate(([0], brk + 1))]
+    ends = idx[np.concatenate((brk, [idx.size - 1]))] + 1
+    return starts, ends
+
+
+def long_runs(mask: np.ndarray, min_len: int) -> np.ndarray:
+    """The runs of True in ``mask`` that are at least ``min_len`` channels long."""
+    starts, ends = runs(mask)
+    long = (ends - starts) >= min_len
+    return intervals_mask(mask.size, starts[long], ends[long])
+
+
 def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.ndarray:
     """Grow every run of True by ``factor`` times its own length (at least ``minimum``) per side."""
-    n = mask.size
-    edges = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
-    starts = np.flatnonzero(edges == 1)
-    ends = np.flatnonzero(edges == -1)
+    starts, ends = runs(mask)
     if starts.size == 0:
         return mask.copy()
     grow = np.maximum(np.ceil((ends - starts) * factor), minimum).astype(np.int64)
-    return intervals_mask(n, starts - grow, ends + grow)
+    return intervals_mask(mask.size, starts - grow, ends + grow)
 
 
 def intervals_mask(n: int, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:

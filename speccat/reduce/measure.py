@@ -7,7 +7,13 @@ from collections.abc import Sequence
 import numpy as np
 
 from speccat.model import BaselineModel, LineFit, Measurement
-from speccat.reduce.baseline import BaselineFit, dilate_runs, fit_baseline, intervals_mask
+from speccat.reduce.baseline import (
+    BaselineFit,
+    dilate_runs,
+    fit_baseline,
+    intervals_mask,
+    long_runs,
+)
 from speccat.reduce.detect import kernel_sigmas
 from speccat.reduce.engine import Noise, detect_and_fit, reach_sigma
 from speccat.reduce.fit import FWHM_PER_SIGMA, WORK, model
@@ -49,10 +55,7 @@ def saturated(y: np.ndarray, valid: np.ndarray, min_run: int = 3) -> np.ndarray:
         at = valid & (y == level)
         if np.count_nonzero(at) < min_run:
             continue
-        edges = np.diff(np.concatenate(([0], at.astype(np.int8), [0])))
-        starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
-        long = (ends - starts) >= min_run
-        out |= intervals_mask(y.size, starts[long], ends[long])
+        out |= long_runs(at, min_run)
     if np.count_nonzero(out) > valid.sum() // 4:
         return np.zeros(y.size, dtype=bool)  # (nearly) constant data, not a saturated recorder
     return out
@@ -91,10 +94,7 @@ def _long_runs(mask: np.ndarray, min_len: int) -> np.ndarray:
     lines not yet fitted) out of the noise estimate, while single clipped noise channels
     (a run of 3 after dilation) stay in it so that the noise tails are not truncated.
     """
-    edges = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
-    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
-    long = (ends - starts) >= min_len
-    return intervals_mask(mask.size, starts[long], ends[long])
+    return long_runs(mask, min_len)
 
 
 def _line_mask(params: np.ndarray, n: int, dilate_fwhm: float) -> np.ndarray:
