@@ -104,21 +104,29 @@ def _fit_all(
     resid: np.ndarray, valid: np.ndarray, params: np.ndarray, noise: Noise, s: ReduceSettings
 ) -> list[Group]:
     n = resid.size
-    chan = np.arange(n, dtype=float)
     groups = []
     rows_list = group_rows(params, s.max_components)
+    # how far each component reaches: a Gaussian is < 1e-14 of its peak beyond 8 sigma
+    reach = (
+        SHIFT_REACH * reach_sigma(params)
+        if s.profile == "gaussian"
+        else np.full(len(params), np.inf)
+    )
     for rows in rows_list:
         p0 = params[rows]
         lo, hi = window(p0, n)
         sel = valid[lo:hi]
-        x = chan[lo:hi][sel]
+        x = np.arange(lo, hi, dtype=float)[sel]
         if x.size < p0.size + 1:
             continue
-        # the other components (of every other group) over this window only
-        others = model(x, np.delete(params, rows, axis=0), s.profile) if len(rows_list) > 1 else 0.0
-        y = resid[lo:hi][sel] - others
+        # the other components (of every other group) that reach this window, over it only
+        near = np.abs(params[:, 1] - 0.5 * (lo + hi)) < reach + 0.5 * (hi - lo)
+        near[rows] = False
+        y = resid[lo:hi][sel]
+        if near.any():
+            y = y - model(x, params[near], s.profile)
         fit = _simplest(x, y, p0, noise, s.detect_sigma)
-        if np.all(np.isfinite(fit.params)) and np.all(np.isfinite(fit.cov)):
+        if np.isfinite(fit.params).all() and np.isfinite(fit.cov).all():
             groups.append(Group(fit.params, fit, lo, hi))
     return groups
 

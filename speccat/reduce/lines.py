@@ -41,7 +41,8 @@ def assemble(
     index = 0
     for cluster in clusters(groups):
         merged = merge(cluster)
-        comps = [c for g in cluster for c in components(g.fit)]
+        per_group = [components(g.fit) for g in cluster]
+        comps = [c for group_comps in per_group for c in group_comps]
         if is_wide(merged.params, comps, merged.lo, merged.hi, profile):
             chi2 = merged.fit.rss / merged.fit.dof / noise.rms**2
             masks = (valid, clip)
@@ -52,8 +53,12 @@ def assemble(
                 out.append(wide)
                 index += 1
                 continue
-        for group in cluster:
-            out.extend(_group_lines(freq, dfdc, data, total, group, (valid, clip), noise, s, index))
+        for group, group_comps in zip(cluster, per_group, strict=True):
+            out.extend(
+                _group_lines(
+                    freq, dfdc, data, total, group, group_comps, (valid, clip), noise, s, index
+                )
+            )
             index += 1
     return sorted(out, key=lambda line: line.center_hz)
 
@@ -100,17 +105,18 @@ def _group_lines(
     data: np.ndarray,
     total: np.ndarray,
     group: Group,
+    comps: list[Component],
     masks: tuple[np.ndarray, np.ndarray],
     noise: Noise,
     s: ReduceSettings,
     index: int,
 ) -> list[LineFit]:
-    """One ``LineFit`` per component of an ordinary blend group (Gaussian/Voigt values)."""
+    """One ``LineFit`` per component of an ordinary blend group (Gaussian/Voigt values);
+    ``comps`` are the group's ``components``."""
     n = data.size
     profile = s.profile
     valid, clip = masks
     out: list[LineFit] = []
-    comps = components(group.fit)
     chi2 = group.fit.rss / group.fit.dof / noise.rms**2
     poor = (not group.fit.success) or chi2 > max(
         s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)

@@ -99,6 +99,8 @@ def merge(cluster: list[Group]) -> Group:
 def is_wide(params: np.ndarray, comps: list[Component], lo: int, hi: int, profile: str) -> bool:
     """The rule of the module docstring for one group (``params`` rows, window [lo, hi))."""
     k = len(comps)
+    if k < 2:
+        return False
     peaks = np.array([c.peak for c in comps])
     mixed = bool(np.any(peaks > 0) and np.any(peaks < 0))
     if k < 2 or (k < MIN_COMPONENTS and not mixed):
