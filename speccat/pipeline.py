@@ -31,6 +31,7 @@ from speccat.model import Detection, FileResult, SpectrumResult, with_total_inte
 
 if TYPE_CHECKING:
     from speccat.archive import Archive
+    from speccat.archive.rows import PreparedFile
     from speccat.catalogue import Catalogue
 
 
@@ -236,17 +237,28 @@ def process_file(path: str, settings: Settings | None = None) -> FileResult:
     return FileResult(path, size, sha, spectra=tuple(spectra))
 
 
+def prepare_files(paths: list[str]) -> list[PreparedFile]:
+    """Worker task: ``process_file`` on each path, turned into ready-to-insert archive rows
+    (building rows and compressing arrays here keeps the single writer's work small)."""
+    from speccat.archive.rows import PreparedFile, prepare_file
+
+    out = []
+    for path in paths:
+        result = process_file(path)
+        try:
+            out.append(prepare_file(result))
+        except Exception as exc:  # a file must never take the ingest down
+            reason = f"internal error: {type(exc).__name__}: {exc}"
+            out.append(PreparedFile(path, result.size_bytes, result.sha256, error=reason))
+    return out
+
+
 # --------------------------------------------------------------------------- the night
 
 
 def night_label(obs_time: datetime) -> str:
     """The night an observation belongs to: its UTC date shifted back 12 hours (DESIGN.md)."""
     return (obs_time - timedelta(hours=12)).date().isoformat()
-
-
-def _earliest_time(result: FileResult) -> datetime | None:
-    times = [s.spectrum.obs_time for s in result.spectra if s.spectrum.obs_time is not None]
-    return min(times) if times else None
 
 
 @dataclass
@@ -288,8 +300,9 @@ ProgressFn = Callable[[int, int, str], None]
 
 def _results(
     paths: list[str], settings: Settings, known: dict[str, float], jobs: int
-) -> Iterator[FileResult]:
-    """FileResults in completion order; at most a few files per worker in flight (flat memory).
+) -> Iterator[PreparedFile]:
+    """Prepared files in completion order; at most a few files per worker in flight (flat
+    memory). Files go to the workers in small chunks (fewer round trips through the pool).
 
     A worker that dies (killed by the kernel for memory, a crash in C code) breaks the pool:
     the files it left unfinished are then read again one at a time in a fresh worker, so the
@@ -298,53 +311,66 @@ def _results(
     if jobs <= 1 or len(paths) <= 1:
         _init_worker(settings, known)
         for p in paths:
-            yield process_file(p)
+            yield from prepare_files([p])
         return
+    chunk = max(1, min(8, len(paths) // (8 * jobs)))
     todo = deque(paths)
     while todo:
-        orphans = deque((yield from _pool_pass(todo, settings, known, jobs, 4 * jobs)))
+        orphans = deque(
+            (yield from _pool_pass(todo, settings, known, jobs, 4 * jobs * chunk, chunk))
+        )
         while orphans:  # one in flight at a time: a second death names its file
-            for path in (yield from _pool_pass(orphans, settings, known, 1, 1)):
+            for path in (yield from _pool_pass(orphans, settings, known, 1, 1, 1)):
                 yield _worker_died(path)
 
 
 def _pool_pass(
-    todo: deque[str], settings: Settings, known: dict[str, float], jobs: int, window: int
-) -> Generator[FileResult, None, list[str]]:
-    """Run files from ``todo`` in a process pool until it is empty or the pool breaks;
-    returns the files that were in flight when a worker died."""
+    todo: deque[str],
+    settings: Settings,
+    known: dict[str, float],
+    jobs: int,
+    window: int,
+    chunk: int,
+) -> Generator[PreparedFile, None, list[str]]:
+    """Run files from ``todo`` in a process pool, ``chunk`` files per task and at most
+    ``window`` files in flight, until it is empty or the pool breaks; returns the files that
+    were in flight when a worker died."""
     import multiprocessing as mp
     from concurrent.futures.process import BrokenProcessPool
 
     # forkserver: workers never inherit the writer's open database connections.
     ctx = mp.get_context("forkserver")
-    in_flight: dict[Future[FileResult], str] = {}
+    in_flight: dict[Future[list[PreparedFile]], list[str]] = {}
+    n_flight = 0
     with ProcessPoolExecutor(
         jobs, mp_context=ctx, initializer=_init_worker, initargs=(settings, known)
     ) as pool:
         try:
             while todo or in_flight:
-                while todo and len(in_flight) < window:
-                    fut = pool.submit(process_file, todo[0])
-                    in_flight[fut] = todo.popleft()
+                while todo and n_flight < window:
+                    task = [todo.popleft() for _ in range(min(chunk, len(todo)))]
+                    in_flight[pool.submit(prepare_files, task)] = task
+                    n_flight += len(task)
                 done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
                 for fut in done:
-                    result = fut.result()
-                    del in_flight[fut]
-                    yield result
+                    results = fut.result()
+                    n_flight -= len(in_flight.pop(fut))
+                    yield from results
         except BrokenProcessPool:
             if not in_flight:
                 raise SpeccatError("worker processes cannot be started (out of memory?)") from None
-            return list(in_flight.values())
+            return [p for task in in_flight.values() for p in task]
     return []
 
 
-def _worker_died(path: str) -> FileResult:
+def _worker_died(path: str) -> PreparedFile:
+    from speccat.archive.rows import PreparedFile
+
     try:
         size, sha = file_digest(path)
     except OSError:
         size, sha = 0, ""
-    return FileResult(path, size, sha, error="the worker reading it died (out of memory?)")
+    return PreparedFile(path, size, sha, error="the worker reading it died (out of memory?)")
 
 
 def ingest(
@@ -370,20 +396,7 @@ def ingest(
     for path, reason in problems:
         archive.store_failure(run_id, path, reason, night=night)
         summary.failures.append((path, reason))
-    todo = []
-    for path in files:
-        try:
-            _, sha = file_digest(path)
-        except OSError as exc:
-            archive.store_failure(
-                run_id, path, f"cannot read file ({exc.strerror or exc})", night=night
-            )
-            summary.failures.append((path, f"cannot read file ({exc.strerror or exc})"))
-            continue
-        if archive.has_sha256(sha):
-            summary.files_skipped += 1
-        else:
-            todo.append(path)
+    todo = _unarchived(files, archive, run_id, night, summary)
     if progress:
         progress(0, len(todo), "")
     earliest: datetime | None = None
@@ -393,11 +406,11 @@ def ingest(
             archive.store_failure(run_id, result.path, result.error, night=night)
             summary.failures.append((result.path, result.error))
         else:
-            t = _earliest_time(result)
+            t = result.earliest_obs
             if t is not None and (earliest is None or t < earliest):
                 earliest = t
             label = night or (night_label(t) if t is not None else provisional)
-            if archive.store_file(run_id, result, label):
+            if archive.store_prepared(run_id, result, label):
                 _count(summary, result)
             else:
                 summary.files_skipped += 1
@@ -414,16 +427,38 @@ def ingest(
     return summary
 
 
-def _count(summary: IngestSummary, result: FileResult) -> None:
+def _unarchived(
+    files: list[str], archive: Archive, run_id: int, night: str | None, summary: IngestSummary
+) -> list[str]:
+    """The files whose SHA-256 is not archived yet (the others count as skipped; an unreadable
+    one is recorded as a failure). One query per few hundred files."""
+    digests: dict[str, str] = {}
+    for path in files:
+        try:
+            _, digests[path] = file_digest(path)
+        except OSError as exc:
+            reason = f"cannot read file ({exc.strerror or exc})"
+            archive.store_failure(run_id, path, reason, night=night)
+            summary.failures.append((path, reason))
+    known = archive.known_sha256(digests.values())
+    todo = [p for p, sha in digests.items() if sha not in known]
+    summary.files_skipped += len(digests) - len(todo)
+    return todo
+
+
+def _count(summary: IngestSummary, result: PreparedFile) -> None:
+    from speccat.archive.rows import LINE_AT
+
     summary.files_stored += 1
     for s in result.spectra:
         summary.spectra += 1
-        summary.sources.add(s.spectrum.source)
+        summary.sources.add(s.source)
         for d in s.detections:
             summary.detections += 1
-            if d.line is not None:
+            line = d.row[LINE_AT]
+            if line is not None:
                 summary.identified += 1
-                summary.per_line[d.line.name] += 1
+                summary.per_line[str(line)] += 1
             else:
                 summary.per_line["(unidentified)"] += 1
 

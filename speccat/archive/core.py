@@ -24,13 +24,12 @@ from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 
 from speccat import __version__
 from speccat.archive import engine as eng
-from speccat.archive.blobs import encode_data, encode_freq
+from speccat.archive.inserts import InsertStatements
 from speccat.archive.queries import QueryMixin
-from speccat.archive.records import clean_float
+from speccat.archive.rows import CLIPPED_FLAG, PreparedFile, naive_utc, prepare_file
 from speccat.archive.schema import (
     MIGRATIONS,
     SCHEMA_VERSION,
-    candidates,
     clip_strings,
     detections,
     failures,
@@ -40,24 +39,22 @@ from speccat.archive.schema import (
     schema_version,
     sources,
     spectra,
-    spectrum_data,
 )
 from speccat.errors import ArchiveError
-from speccat.model import Detection, FileResult, SpectrumResult
+from speccat.model import FileResult
 
-#: Spectrum flag: a header string (source, telescope, unit...) was longer than its column and
-#: was cut to fit.
-CLIPPED_FLAG = "metadata-clipped"
+__all__ = ["CLIPPED_FLAG", "Archive", "naive_utc", "utcnow"]
+
+#: The writer lets SQLite's WAL grow to this many pages (4 KiB each) before it copies them back
+#: into the database (default 1000). Every file is its own transaction and rewrites the same
+#: index pages, so a longer WAL is checkpointed, and synced, several times less often while
+#: each page is copied back once. Set on the writer's connection only, by the first
+#: ``store_prepared``; a closed archive leaves no WAL behind.
+WAL_CHECKPOINT_PAGES = 8000
 
 
 def utcnow() -> datetime:
     return datetime.now(UTC).replace(tzinfo=None)
-
-
-def naive_utc(stamp: datetime | None) -> datetime | None:
-    if stamp is None or stamp.tzinfo is None:
-        return stamp
-    return stamp.astimezone(UTC).replace(tzinfo=None)
 
 
 def _reason(exc: BaseException) -> str:
@@ -75,6 +72,7 @@ class Archive(QueryMixin):
         self._writer = writer
         self.dialect = dialect
         self.readonly = writer is None
+        self._inserts: InsertStatements | None = None
 
     # ---- opening ---------------------------------------------------------------------------
     @classmethod
@@ -174,6 +172,16 @@ class Archive(QueryMixin):
         except DBAPIError as exc:
             raise ArchiveError(f"{self.url}: write failed ({_reason(exc)})") from None
 
+    def _writer_dialect(self) -> Any:
+        if self._writer is None:
+            raise ArchiveError(f"{self.url}: opened read-only")
+        return self._writer.dialect
+
+    def _driver_error(self) -> type[Exception]:
+        dbapi = getattr(self._writer_dialect(), "loaded_dbapi", None)
+        error = getattr(dbapi, "Error", None)
+        return error if isinstance(error, type) and issubclass(error, Exception) else DBAPIError
+
     def _insert(self, table: Any) -> Any:
         mod = sqlite_dialect if self.dialect == "sqlite" else pg_dialect
         return mod.insert(table)
@@ -235,80 +243,45 @@ class Archive(QueryMixin):
             found = conn.execute(select(files.c.id).where(files.c.sha256 == sha256)).first()
         return found is not None
 
+    def known_sha256(self, sha256s: Iterable[str], batch: int = 500) -> set[str]:
+        """The SHA-256 digests among ``sha256s`` that are already archived (few queries)."""
+        wanted = list(dict.fromkeys(sha256s))
+        found: set[str] = set()
+        with self._reader.connect() as conn:
+            for i in range(0, len(wanted), batch):
+                chunk = wanted[i : i + batch]
+                stmt = select(files.c.sha256).where(files.c.sha256.in_(chunk))
+                found.update(str(v) for v in conn.execute(stmt).scalars())
+        return found
+
     def store_file(self, run_id: int, result: FileResult, night: str) -> bool:
         """Store a file and everything measured in it in one transaction. Returns False when
         its SHA-256 is already archived (nothing written). A result with ``error`` is recorded
         as a failure instead (and returns False)."""
-        if result.error is not None:
-            self.store_failure(run_id, result.path, result.error, night)
-            return False
-        file_row = {
-            "path": result.path,
-            "size_bytes": int(result.size_bytes),
-            "sha256": result.sha256,
-            "run_id": run_id,
-            "night": night,
-        }
-        clip_strings(files, file_row)
-        stmt = (
-            self._insert(files)
-            .values(file_row)
-            .on_conflict_do_nothing(index_elements=["sha256"])
-            .returning(files.c.id)
-        )
-        with self._write() as conn:
-            file_id = conn.execute(stmt).scalar_one_or_none()
-            if file_id is None:
-                return False
-            self._store_spectra(conn, int(file_id), result.spectra, night)
-        return True
+        return self.store_prepared(run_id, prepare_file(result), night)
 
-    def _store_spectra(
-        self, conn: Connection, file_id: int, results: Iterable[SpectrumResult], night: str
-    ) -> None:
-        results = list(results)
-        if not results:
-            return
-        rows = [_spectrum_row(file_id, r, night) for r in results]
-        ins = insert(spectra).returning(spectra.c.id, sort_by_parameter_order=True)
-        spectrum_ids = conn.execute(ins, rows).scalars().all()
-        blobs = [
-            {
-                "spectrum_id": int(sid),
-                "freq_hz": encode_freq(r.spectrum.freq_hz),
-                "data": encode_data(r.spectrum.intensity),
-            }
-            for sid, r in zip(spectrum_ids, results, strict=True)
-        ]
-        conn.execute(insert(spectrum_data), blobs)
-        det_rows: list[dict[str, Any]] = []
-        det_objs: list[Detection] = []
-        for sid, res, srow in zip(spectrum_ids, results, rows, strict=True):
-            for det in res.detections:
-                det_rows.append(_clipped(detections, **_detection_row(int(sid), det, srow)))
-                det_objs.append(det)
-        if not det_rows:
-            return
-        ins = insert(detections).returning(detections.c.id, sort_by_parameter_order=True)
-        det_ids = conn.execute(ins, det_rows).scalars().all()
-        cand_rows = [
-            {
-                "detection_id": int(did),
-                "rank": rank,
-                "name": c.name,
-                "species": c.species,
-                "transition": c.transition,
-                "rest_freq_hz": clean_float(c.rest_freq_hz),
-                "v_lsr_kms": clean_float(c.v_lsr_kms),
-                "score": clean_float(c.score),
-            }
-            for did, det in zip(det_ids, det_objs, strict=True)
-            for rank, c in enumerate(det.candidates, start=1)
-        ]
-        for row in cand_rows:
-            clip_strings(candidates, row)
-        if cand_rows:
-            conn.execute(insert(candidates), cand_rows)
+    def store_prepared(self, run_id: int, prepared: PreparedFile, night: str) -> bool:
+        """``store_file`` for a file whose rows a worker already built (``rows.prepare_file``):
+        one transaction, all in or all out; False when its SHA-256 is already archived."""
+        if prepared.error is not None:
+            self.store_failure(run_id, prepared.path, prepared.error, night)
+            return False
+        if self._inserts is None:
+            self._inserts = InsertStatements(self._writer_dialect())
+        driver_error = self._driver_error()
+        try:
+            with self._write() as conn:
+                info = conn.connection.info
+                if self.dialect == "sqlite" and "speccat_autocheckpoint" not in info:
+                    conn.exec_driver_sql(f"PRAGMA wal_autocheckpoint = {WAL_CHECKPOINT_PAGES}")
+                    info["speccat_autocheckpoint"] = WAL_CHECKPOINT_PAGES
+                cursor = conn.connection.cursor()
+                try:
+                    return self._inserts.store(cursor, run_id, prepared, night)
+                finally:
+                    cursor.close()
+        except driver_error as exc:  # raised by the driver's cursor, not wrapped by SQLAlchemy
+            raise ArchiveError(f"{self.url}: write failed ({_reason(exc)})") from None
 
     def store_catalogue(
         self, catalogue_lines: Iterable[Any], conn: Connection | None = None
@@ -386,115 +359,3 @@ def _line_rows(catalogue_lines: Iterable[Any]) -> list[dict[str, Any]]:
         )
         for ln in catalogue_lines
     ]
-
-
-def _joined(values: Iterable[str]) -> str:
-    out: list[str] = []
-    for v in values:
-        if v and v not in out:
-            out.append(v)
-    return ";".join(out)
-
-
-def _spectrum_row(file_id: int, res: SpectrumResult, night: str) -> dict[str, Any]:
-    s, m = res.spectrum, res.measurement
-    base = m.baseline
-    row = {
-        "file_id": file_id,
-        "hdu": s.origin.hdu,
-        "row": s.origin.row,
-        "source": s.source,
-        "ra_deg": clean_float(s.ra_deg),
-        "dec_deg": clean_float(s.dec_deg),
-        "obs_time": naive_utc(s.obs_time),
-        "night": night,
-        "site_lon_deg": None if s.site is None else clean_float(s.site.lon_deg),
-        "site_lat_deg": None if s.site is None else clean_float(s.site.lat_deg),
-        "site_height_m": None if s.site is None else clean_float(s.site.height_m),
-        "telescope": s.telescope,
-        "specsys": s.specsys,
-        "rest_freq_hz": clean_float(s.rest_freq_hz),
-        "velocity_convention": None
-        if s.velocity_convention is None
-        else str(s.velocity_convention),
-        "velosys_ms": clean_float(s.velosys_ms),
-        "lsrk_factor": float(res.lsrk_factor),
-        "frame_flag": res.frame_flag,
-        "stokes": json.dumps(list(s.intensity)),
-        "primary_stokes": m.stokes,
-        "n_channels": s.n_channels,
-        "intensity_unit": s.intensity_unit,
-        "rms": clean_float(m.rms),
-        "continuum": clean_float(m.continuum),
-        "baseline": json.dumps(
-            {
-                "n_channels": base.n_channels,
-                "coeffs": [float(c) for c in base.coeffs],
-                "ripple_amp": float(base.ripple_amp),
-                "ripple_period_chan": float(base.ripple_period_chan),
-                "ripple_phase": float(base.ripple_phase),
-            }
-        ),
-        "flags": _joined(m.flags),
-        "meta": json.dumps(dict(s.meta), sort_keys=True, default=str),
-    }
-    if clip_strings(spectra, row):
-        row["flags"] = _joined((*m.flags, CLIPPED_FLAG))
-    return row
-
-
-def _detection_row(spectrum_id: int, det: Detection, srow: Mapping[str, Any]) -> dict[str, Any]:
-    fit, ident = det.fit, det.line
-    row: dict[str, Any] = {
-        name: clean_float(getattr(fit, name))
-        for name in [
-            "center_hz",
-            "center_err_hz",
-            "peak",
-            "peak_err",
-            "fwhm_hz",
-            "fwhm_err_hz",
-            "integral_fit_hz",
-            "integral_fit_err_hz",
-            "integral_sum_hz",
-            "integral_sum_err_hz",
-            "center_chan",
-            "fwhm_chan",
-            "snr",
-            "chi2_red",
-            "lorentz_fwhm_hz",
-            "lorentz_fwhm_err_hz",
-            "w50_hz",
-            "w20_hz",
-            "moment1_hz",
-            "moment2_hz",
-        ]
-    }
-    row.update(
-        spectrum_id=spectrum_id,
-        stokes=det.stokes,
-        kind=str(fit.kind),
-        profile=fit.profile,
-        blend=int(fit.blend),
-        fit_flags=_joined(fit.flags),
-        v_lsr_kms=clean_float(det.v_lsr_kms),
-        v_lsr_err_kms=clean_float(det.v_lsr_err_kms),
-        fwhm_kms=clean_float(det.fwhm_kms),
-        fwhm_err_kms=clean_float(det.fwhm_err_kms),
-        integral_kms=clean_float(det.integral_kms),
-        integral_err_kms=clean_float(det.integral_err_kms),
-        flags=_joined((*fit.flags, *det.flags)),
-        b_los_ug=clean_float(det.b_los_ug),
-        b_los_err_ug=clean_float(det.b_los_err_ug),
-        species=None if ident is None else ident.species,
-        species_lc=None if ident is None else ident.species.lower(),
-        line=None if ident is None else ident.name,
-        transition=None if ident is None else ident.transition,
-        rest_freq_hz=None if ident is None else clean_float(ident.rest_freq_hz),
-        id_score=None if ident is None else clean_float(ident.score),
-        source=srow["source"],
-        source_lc=str(srow["source"]).lower(),
-        night=srow["night"],
-        obs_time=srow["obs_time"],
-    )
-    return row
