@@ -299,14 +299,14 @@ def _inverse(matrix: np.ndarray) -> np.ndarray:
     not finite or no decomposition converges (a run-away amplitude overflows the Jacobian)."""
     if not math.isfinite(float(np.abs(matrix).sum())):
         return np.full_like(matrix, np.inf)
-    factor, info = dpotrf(matrix, lower=0, clean=0)  # positive definite: the common case
+    factor, info = dpotrf(matrix, lower=0, clean=1)  # positive definite: the common case
     if info == 0:
-        upper, info = dpotri(factor, lower=0)
+        upper, info = dpotri(factor, lower=0)  # the inverse's upper triangle, zeros below
         if info == 0:
-            out = np.triu(upper)
-            out += np.triu(upper, 1).T
+            out = upper + upper.T
+            out.flat[:: out.shape[0] + 1] *= 0.5
             if math.isfinite(float(out.sum())):
-                return out
+                return np.asarray(out)
     try:
         return np.asarray(np.linalg.pinv(matrix, rcond=1e-12))
     except np.linalg.LinAlgError:
