@@ -5,7 +5,10 @@ written with plain astropy, then, in one run:
 - floor: every file only opened and read with astropy.io.fits;
 - speccat: ``speccat ingest`` in a subprocess (all cores), peak memory of that process tree;
 - obvious script: astropy.io.fits + numpy polyfit baseline + astropy.modeling Gaussian fit per
-  line + sqlite3 inserts, on a subset, as files per second.
+  line + sqlite3 inserts, on a subset, as files per second;
+- the single writer alone: one file measured by the pipeline's worker code, then stored again
+  and again under new SHA-256s (``Archive.store_prepared``), as files per second and CPU per
+  file: the ceiling the writer puts on an ingest, whatever the workers' speed.
 """
 
 from __future__ import annotations
@@ -119,6 +122,28 @@ def speccat_ingest(folder: Path, db: Path) -> tuple[float, float, dict[str, Any]
     return seconds, peak_mb, json.loads(out.stdout)
 
 
+def writer_only(path: Path, db: Path, n_files: int) -> tuple[float, float]:
+    """Files per second (wall) and CPU ms per file of the writer storing ``n_files`` copies of
+    one prepared file (each its own transaction, as in an ingest)."""
+    from dataclasses import replace
+
+    from speccat.archive import Archive
+    from speccat.pipeline import prepare_files
+
+    (prepared,) = prepare_files([str(path)])
+    if prepared.error is not None:
+        raise RuntimeError(prepared.error)
+    with Archive.open(str(db), create=True) as archive:
+        run_id = archive.begin_run({"bench": "writer"})
+        copies = [replace(prepared, sha256=f"{i:064x}") for i in range(n_files)]
+        archive.store_prepared(run_id, replace(prepared, sha256="f" * 64), "bench")  # warm
+        t0, c0 = time.perf_counter(), time.process_time()
+        for copy in copies:
+            archive.store_prepared(run_id, copy, "bench")
+        wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+    return n_files / wall, 1e3 * cpu / n_files
+
+
 def run(quick: bool) -> list[dict[str, Any]]:
     sizes = [200] if quick else [2000, 20000]
     rows: list[dict[str, Any]] = []
@@ -131,6 +156,9 @@ def run(quick: bool) -> list[dict[str, Any]]:
             subset = paths[: min(len(paths), 40 if quick else 200)]
             obvious = (
                 obvious_script(subset, Path(tmp) / "obvious.sqlite") * len(paths) / len(subset)
+            )
+            writer_rate, writer_cpu_ms = writer_only(
+                paths[0], Path(tmp) / "writer.sqlite", 300 if quick else 2000
             )
             rows += [
                 {
@@ -156,6 +184,16 @@ def run(quick: bool) -> list[dict[str, Any]]:
                     "figure": f"ingest {n}: peak memory of one process",
                     "value": peak_mb,
                     "unit": "MB",
+                },
+                {
+                    "figure": "ingest writer alone: files stored per second",
+                    "value": writer_rate,
+                    "unit": "files/s",
+                },
+                {
+                    "figure": "ingest writer alone: CPU per file",
+                    "value": writer_cpu_ms,
+                    "unit": "ms",
                 },
                 {
                     "figure": f"ingest {n}: lines found per spectrum",
