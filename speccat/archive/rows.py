@@ -17,7 +17,13 @@ from typing import Any
 
 from speccat.archive.blobs import encode_data, encode_freq
 from speccat.archive.records import clean_float
-from speccat.archive.schema import candidates, clip_strings, detections, spectra
+from speccat.archive.schema import (
+    candidates,
+    clip_strings,
+    detections,
+    spectra,
+    string_lengths,
+)
 from speccat.model import Candidate, Detection, FileResult, SpectrumResult
 
 #: Spectrum flag: a header string (source, telescope, unit...) was longer than its column and
@@ -269,18 +275,23 @@ def detection_row(det: Detection, srow: dict[str, Any]) -> tuple[Any, ...]:
 
 
 def candidate_rows(ranked: Iterable[Candidate]) -> tuple[tuple[Any, ...], ...]:
-    """``candidates`` rows (CANDIDATE_COLUMNS), rank 1 first."""
-    out = []
-    for rank, c in enumerate(ranked, start=1):
-        row = {
-            "rank": rank,
-            "name": c.name,
-            "species": c.species,
-            "transition": c.transition,
-            "rest_freq_hz": clean_float(c.rest_freq_hz),
-            "v_lsr_kms": clean_float(c.v_lsr_kms),
-            "score": clean_float(c.score),
-        }
-        clip_strings(candidates, row)
-        out.append(tuple(row[k] for k in CANDIDATE_COLUMNS))
-    return tuple(out)
+    """``candidates`` rows (CANDIDATE_COLUMNS), rank 1 first, strings clipped to their columns
+    (built as tuples directly: a file has a handful of candidates per line)."""
+    width = string_lengths(candidates.name)
+    n_name, n_species, n_transition = width["name"], width["species"], width["transition"]
+    return tuple(
+        (
+            rank,
+            _cut(c.name, n_name),
+            _cut(c.species, n_species),
+            _cut(c.transition, n_transition),
+            clean_float(c.rest_freq_hz),
+            clean_float(c.v_lsr_kms),
+            clean_float(c.score),
+        )
+        for rank, c in enumerate(ranked, start=1)
+    )
+
+
+def _cut(value: Any, length: int) -> Any:
+    return value[:length] if isinstance(value, str) and len(value) > length else value

@@ -211,3 +211,25 @@ def test_a_repeated_axis_reuses_its_blob_but_stays_bit_exact() -> None:
     for probe in (other, axis[::-1], axis[:100]):
         assert decode_freq(encode_freq(probe)).tobytes() == np.ascontiguousarray(probe).tobytes()
     assert decode_freq(first).tobytes() == axis.tobytes()
+
+
+def test_over_long_candidate_strings_are_cut_to_their_columns(archive_url: str) -> None:  # noqa: F811
+    from dataclasses import replace
+
+    from speccat.model import Candidate
+
+    result = make_file(31, n_spectra=1, n_det=1)
+    sres = result.spectra[0]
+    long = Candidate("L" * 150, "S" * 150, "T" * 250, 1.4e9, 12.5, 0.5)
+    det = replace(sres.detections[0], candidates=(long, *sres.detections[0].candidates))
+    odd = replace(result, spectra=(replace(sres, detections=(det,)),))
+    with Archive.open(archive_url, create=True) as archive:
+        assert archive.store_file(archive.begin_run({}), odd, "n")
+        with archive._reader.connect() as conn:
+            first = conn.execute(select(candidates).where(candidates.c.rank == 1)).mappings().one()
+    assert (first["name"], first["species"], first["transition"]) == (
+        "L" * 100,
+        "S" * 100,
+        "T" * 200,
+    )
+    assert (first["rest_freq_hz"], first["v_lsr_kms"], first["score"]) == (1.4e9, 12.5, 0.5)
