@@ -25,7 +25,6 @@ from typing import Any
 
 import numpy as np
 from scipy.ndimage import convolve1d
-from scipy.signal import savgol_coeffs
 
 #: Splitting factors Z (Hz per µG, separation of the σ components), by catalogue line name:
 #: HI 2.8 Hz/µG; OH 1665 3.27 and OH 1667 1.96 Hz/µG (Troland & Heiles 1982; Heiles et al.
@@ -70,6 +69,8 @@ def _derivative(y: np.ndarray, f: np.ndarray, length: int) -> np.ndarray:
 @lru_cache(maxsize=32)
 def _sg_kernel(length: int) -> np.ndarray:
     """Savitzky–Golay quartic first-derivative convolution kernel (unit channel spacing)."""
+    from scipy.signal import savgol_coeffs  # here: scipy.signal costs ~0.5 s to import
+
     return np.asarray(savgol_coeffs(length, 4, deriv=1, use="conv"), dtype=float)
 
 
