@@ -80,21 +80,14 @@ def _baseline(
         start=start,
     )
     resid = y - base.total
-    quiet = valid & ~line_mask & ~_long_runs(valid & ~line_mask & ~good, 4)
+    # features the clipping removed (runs of >= 4 clipped channels: lines not yet fitted) stay
+    # out of the noise estimate; single clipped noise channels (a run of 3 after dilation) stay
+    # in it, so that the noise tails are not truncated
+    quiet = valid & ~line_mask & ~long_runs(valid & ~line_mask & ~good, 4)
     rms = robust_rms(resid[quiet] if quiet.sum() > 8 else resid[good])
     floor = 1e-9 * max(float(np.max(np.abs(y[valid]))), 1e-300)
     rms = rms if np.isfinite(rms) and rms > floor else floor
     return base, good, Noise(rms, autocorrelation(resid, good))
-
-
-def _long_runs(mask: np.ndarray, min_len: int) -> np.ndarray:
-    """The runs of True in ``mask`` that are at least ``min_len`` channels long.
-
-    Used to keep features that the baseline clipping removed (runs of clipped channels, i.e.
-    lines not yet fitted) out of the noise estimate, while single clipped noise channels
-    (a run of 3 after dilation) stay in it so that the noise tails are not truncated.
-    """
-    return long_runs(mask, min_len)
 
 
 def _line_mask(params: np.ndarray, n: int, dilate_fwhm: float) -> np.ndarray:
