@@ -18,7 +18,7 @@ import time
 from collections import Counter, deque
 from collections.abc import Callable, Generator, Iterable, Iterator, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timedelta
 from pathlib import Path
@@ -111,9 +111,12 @@ class _WorkerState:
 _STATE: _WorkerState | None = None
 
 
-def _init_worker(settings: Settings, known_velocities: dict[str, float]) -> None:
+def _init_worker(settings: Settings, known_velocities: dict[str, float], pids: Any = None) -> None:
+    """Worker set-up; ``pids`` (a queue) learns the worker's process id (see ``_pool_pass``)."""
     global _STATE
     _STATE = _WorkerState(settings, dict(known_velocities))
+    if pids is not None:
+        pids.put(os.getpid())
 
 
 def _catalogue(state: _WorkerState) -> Catalogue:
@@ -315,10 +318,18 @@ def _results(
         return
     chunk = max(1, min(8, len(paths) // (8 * jobs)))
     todo = deque(paths)
+    stalls = 0
     while todo:
+        before = len(todo)
         orphans = deque(
             (yield from _pool_pass(todo, settings, known, jobs, 4 * jobs * chunk, chunk))
         )
+        if not orphans and len(todo) == before:  # the pool broke before taking any file
+            stalls += 1
+            if stalls == 3:
+                raise SpeccatError("worker processes cannot be started (out of memory?)")
+            continue
+        stalls = 0
         while orphans:  # one in flight at a time: a second death names its file
             for path in (yield from _pool_pass(orphans, settings, known, 1, 1, 1)):
                 yield _worker_died(path)
@@ -340,27 +351,65 @@ def _pool_pass(
 
     # forkserver: workers never inherit the writer's open database connections.
     ctx = mp.get_context("forkserver")
+    pids = ctx.SimpleQueue()
     in_flight: dict[Future[list[PreparedFile]], list[str]] = {}
     n_flight = 0
-    with ProcessPoolExecutor(
-        jobs, mp_context=ctx, initializer=_init_worker, initargs=(settings, known)
-    ) as pool:
-        try:
-            while todo or in_flight:
-                while todo and n_flight < window:
-                    task = [todo.popleft() for _ in range(min(chunk, len(todo)))]
-                    in_flight[pool.submit(prepare_files, task)] = task
-                    n_flight += len(task)
-                done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
-                for fut in done:
-                    results = fut.result()
-                    n_flight -= len(in_flight.pop(fut))
-                    yield from results
-        except BrokenProcessPool:
-            if not in_flight:
-                raise SpeccatError("worker processes cannot be started (out of memory?)") from None
-            return [p for task in in_flight.values() for p in task]
+    pool = ProcessPoolExecutor(
+        jobs, mp_context=ctx, initializer=_init_worker, initargs=(settings, known, pids)
+    )
+    broken = False
+    try:
+        while todo or in_flight:
+            while todo and n_flight < window:
+                task = [todo.popleft() for _ in range(min(chunk, len(todo)))]
+                try:
+                    fut = pool.submit(prepare_files, task)
+                except BrokenProcessPool:
+                    todo.extendleft(reversed(task))  # not sent: still to do
+                    raise
+                in_flight[fut] = task
+                n_flight += len(task)
+            done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
+            for fut in done:
+                results = fut.result()
+                n_flight -= len(in_flight.pop(fut))
+                yield from results
+    except BrokenProcessPool:
+        broken = True
+        return [p for task in in_flight.values() for p in task]
+    finally:
+        if broken:
+            _close_broken(pool, pids)
+        else:
+            pool.shutdown(wait=True)
     return []
+
+
+#: How long a broken pool may take to close before the ingest goes on without waiting.
+BROKEN_POOL_CLOSE_S = 120.0
+
+
+def _close_broken(pool: ProcessPoolExecutor, pids: Any) -> None:
+    """Close a pool that a dying worker broke, without hanging.
+
+    Python 3.11's pool can start a worker while it is being declared broken, never stop that
+    worker, and then wait for it to exit (seen under load in the killed-worker test). So the
+    wait runs in a helper thread while every worker that reports its process id to ``pids``
+    (each does, once started) is killed here; the pool is broken, so none of them has work
+    that counts.
+    """
+    closed = threading.Event()
+
+    def close() -> None:
+        pool.shutdown(wait=True, cancel_futures=True)
+        closed.set()
+
+    threading.Thread(target=close, name="speccat-close-pool", daemon=True).start()
+    deadline = time.monotonic() + BROKEN_POOL_CLOSE_S
+    while not closed.wait(0.05) and time.monotonic() < deadline:
+        while not pids.empty():
+            with suppress(ProcessLookupError, PermissionError):
+                os.kill(pids.get(), signal.SIGKILL)
 
 
 def _worker_died(path: str) -> PreparedFile:
