@@ -16,25 +16,22 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft
 import scipy.optimize
-from scipy.linalg.lapack import dtrtrs
+from scipy.linalg.lapack import dpotrf, dtrtrs
 
 from speccat.reduce.noise import robust_rms
 
 
 @dataclass(frozen=True)
 class BaselineFit:
-    """Baseline on every channel: ``poly`` + ``ripple`` parts, polynomial coeffs in x."""
+    """Baseline on every channel: ``total`` = ``poly`` + the ripple (``poly`` itself when
+    there is none), polynomial coeffs in x."""
 
     coeffs: np.ndarray
     ripple_amp: float
     ripple_period_chan: float
     ripple_phase: float
     poly: np.ndarray
-    ripple: np.ndarray
-
-    @property
-    def total(self) -> np.ndarray:
-        return self.poly + self.ripple
+    total: np.ndarray
 
 
 def runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -64,10 +61,20 @@ def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.n
     return intervals_mask(mask.size, starts - grow, ends + grow)
 
 
+#: Up to this many intervals, ``intervals_mask`` sets slices instead of counting over the band.
+FEW_INTERVALS = 64
+
+
 def intervals_mask(n: int, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-    """Boolean mask of the union of channel intervals [lo, hi) (clipped to the band)."""
+    """Boolean mask of the union of channel intervals [lo, hi) (clipped to the band; an
+    interval with hi <= lo is empty)."""
     lo = np.minimum(np.maximum(np.asarray(lo, dtype=np.int64), 0), n)
-    hi = np.minimum(np.maximum(np.asarray(hi, dtype=np.int64), 0), n)
+    hi = np.minimum(np.maximum(np.asarray(hi, dtype=np.int64), lo), n)
+    if lo.size <= FEW_INTERVALS:  # the common case: a slice each beats whole-band passes
+        out = np.zeros(n, dtype=bool)
+        for a, b in zip(lo.tolist(), hi.tolist(), strict=True):
+            out[a:b] = True
+        return out
     acc = np.bincount(lo, minlength=n + 1) - np.bincount(hi, minlength=n + 1)
     return np.asarray(np.cumsum(acc[:n]) > 0)
 
@@ -147,10 +154,12 @@ def fit_linear(
         gram = a.T @ a
         yg = np.where(good, y, 0.0)
         rhs, yy = design.T @ yg, float(np.dot(yg, yg))
-    try:
-        chol = np.linalg.cholesky(gram)
-    except np.linalg.LinAlgError:  # degenerate columns (e.g. ripple aliasing): regularise
-        chol = np.linalg.cholesky(gram + np.eye(gram.shape[0]) * 1e-9 * max(np.trace(gram), 1.0))
+    chol, info = dpotrf(gram, lower=1, clean=1)
+    if info != 0:  # degenerate columns (e.g. ripple aliasing): regularise
+        ridge = np.eye(gram.shape[0]) * 1e-9 * max(np.trace(gram), 1.0)
+        chol, info = dpotrf(gram + ridge, lower=1, clean=1)
+        if info != 0:
+            raise np.linalg.LinAlgError("baseline normal matrix is not positive definite")
     w = dtrtrs(chol, rhs, lower=1)[0]
     rss_all = yy - np.cumsum(w**2)
     n_cols = np.arange(1, design.shape[1] + 1)
@@ -169,11 +178,11 @@ def fit_linear(
     coeffs = _leg_to_power(leg.size) @ leg
     if n_rip:
         s_amp, c_amp = float(beta[0]), float(beta[1])
-        ripple = design[:, :2] @ beta[:2]
+        total = poly + design[:, :2] @ beta[:2]
         amp, phase = float(np.hypot(s_amp, c_amp)), float(np.arctan2(c_amp, s_amp))
     else:
-        ripple, amp, phase = np.zeros(n), 0.0, 0.0
-    fit = BaselineFit(np.asarray(coeffs), amp, period if n_rip else 0.0, phase, poly, ripple)
+        total, amp, phase = poly, 0.0, 0.0
+    fit = BaselineFit(np.asarray(coeffs), amp, period if n_rip else 0.0, phase, poly, total)
     return fit, best_bic
 
 

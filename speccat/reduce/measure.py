@@ -67,7 +67,8 @@ def _baseline(
     line_mask: np.ndarray,
     s: ReduceSettings,
     start: tuple[np.ndarray, float] | None,
-) -> tuple[BaselineFit, np.ndarray, Noise]:
+) -> tuple[BaselineFit, np.ndarray, Noise, np.ndarray]:
+    """The baseline, the channels it was fitted on, the noise, and ``y`` minus the baseline."""
     base, good = fit_baseline(
         y,
         valid,
@@ -87,7 +88,7 @@ def _baseline(
     rms = robust_rms(resid[quiet] if quiet.sum() > 8 else resid[good])
     floor = 1e-9 * max(float(np.max(np.abs(y[valid]))), 1e-300)
     rms = rms if np.isfinite(rms) and rms > floor else floor
-    return base, good, Noise(rms, autocorrelation(resid, good))
+    return base, good, Noise(rms, autocorrelation(resid, good)), resid
 
 
 def _line_mask(params: np.ndarray, n: int, dilate_fwhm: float) -> np.ndarray:
@@ -139,10 +140,10 @@ def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) ->
         flags.append("clipped")
 
     line_mask = np.zeros(n, dtype=bool)
-    base, good, noise = _baseline(yv, valid, line_mask, s, None)
+    base, good, noise, resid = _baseline(yv, valid, line_mask, s, None)
     sigmas = kernel_sigmas(n, s.min_kernel_fwhm_chan, s.max_kernel_fraction, s.ladder_step)
     params, groups = detect_and_fit(
-        yv - base.total, valid, noise, sigmas, s, np.zeros((0, 3 if s.profile == "gaussian" else 4))
+        resid, valid, noise, sigmas, s, np.zeros((0, 3 if s.profile == "gaussian" else 4))
     )
     for _ in range(2):
         if params.shape[0] == 0:
@@ -150,15 +151,14 @@ def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) ->
         line_mask = _line_mask(params, n, s.mask_dilate_fwhm)
         if _leak(params, line_mask & good, len(base.coeffs), s.profile) < 0.05 * noise.rms:
             break  # the clipping already kept (nearly) all line flux out of the baseline
-        new_base, good, new_noise = _baseline(
+        new_base, good, new_noise, resid = _baseline(
             yv, valid, line_mask, s, (good, base.ripple_period_chan)
         )
         shift = np.max(np.abs(new_base.total - base.total)[valid])
         base, noise = new_base, new_noise
         if shift <= 0.1 * noise.rms:
             break
-        params, groups = detect_and_fit(yv - base.total, valid, noise, sigmas, s, params)
-    resid = yv - base.total
+        params, groups = detect_and_fit(resid, valid, noise, sigmas, s, params)
     lines = assemble(freq, resid, valid, clip, groups, noise, s)
     if base.ripple_amp > 0:
         flags.append("baseline-ripple")
