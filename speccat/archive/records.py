@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
@@ -126,7 +125,7 @@ _TIME_AT = RECORD_NAMES.index("obs_time")
 
 def to_values(row: Any) -> list[Any]:
     """A result row of ``record_select`` as export values in ``RECORD_NAMES`` order (MHz, ISO
-    times, None = unknown). Non-finite numbers never reach the archive (``clean_float``)."""
+    times, None = unknown). Non-finite numbers never reach the archive (``rows.clean_float``)."""
     values = list(row)
     for i in _MHZ_AT:
         if values[i] is not None:
@@ -140,14 +139,6 @@ def to_values(row: Any) -> list[Any]:
 def to_record(row: Any) -> dict[str, Any]:
     """A result row of ``record_select`` as an export record keyed by ``RECORD_NAMES``."""
     return dict(zip(RECORD_NAMES, to_values(row), strict=True))
-
-
-def clean_float(value: float | None) -> float | None:
-    """Store non-finite numbers as NULL (unknown) so both engines behave alike."""
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
 
 
 @dataclass(frozen=True, eq=False)

@@ -10,20 +10,15 @@ left out and supplied at insert time. No connection is touched here.
 from __future__ import annotations
 
 import json
+import math
 from collections.abc import Iterable
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
+# Not schema/records: they import SQLAlchemy, which a worker never needs (~0.35 s of start-up).
 from speccat.archive.blobs import encode_data, encode_freq
-from speccat.archive.records import clean_float
-from speccat.archive.schema import (
-    candidates,
-    clip_strings,
-    detections,
-    spectra,
-    string_lengths,
-)
+from speccat.archive.widths import clip_strings, string_lengths
 from speccat.model import Candidate, Detection, FileResult, SpectrumResult
 
 #: Spectrum flag: a header string (source, telescope, unit...) was longer than its column and
@@ -152,6 +147,14 @@ class PreparedFile:
     earliest_obs: datetime | None = None  # earliest Spectrum.obs_time, as read
 
 
+def clean_float(value: float | None) -> float | None:
+    """Store non-finite numbers as NULL (unknown) so both engines behave alike."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
 def naive_utc(stamp: datetime | None) -> datetime | None:
     if stamp is None or stamp.tzinfo is None:
         return stamp
@@ -236,7 +239,7 @@ def spectrum_row(res: SpectrumResult) -> dict[str, Any]:
         "flags": joined(m.flags),
         "meta": json.dumps(dict(s.meta), sort_keys=True, default=str),
     }
-    if clip_strings(spectra, row):
+    if clip_strings("spectra", row):
         row["flags"] = joined((*m.flags, CLIPPED_FLAG))
     return row
 
@@ -270,14 +273,14 @@ def detection_row(det: Detection, srow: dict[str, Any]) -> tuple[Any, ...]:
         source_lc=str(srow["source"]).lower(),
         obs_time=srow["obs_time"],
     )
-    clip_strings(detections, row)
+    clip_strings("detections", row)
     return tuple(row[k] for k in DETECTION_COLUMNS)
 
 
 def candidate_rows(ranked: Iterable[Candidate]) -> tuple[tuple[Any, ...], ...]:
     """``candidates`` rows (CANDIDATE_COLUMNS), rank 1 first, strings clipped to their columns
     (built as tuples directly: a file has a handful of candidates per line)."""
-    width = string_lengths(candidates.name)
+    width = string_lengths("candidates")
     n_name, n_species, n_transition = width["name"], width["species"], width["transition"]
     return tuple(
         (

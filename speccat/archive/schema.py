@@ -10,7 +10,6 @@ Detections carry the spectrum's source/night/obs_time and the primary identifica
 from __future__ import annotations
 
 from collections.abc import Callable, MutableMapping
-from functools import cache
 from typing import Any
 
 from sqlalchemy import (
@@ -29,6 +28,10 @@ from sqlalchemy import (
 )
 from sqlalchemy.engine import Connection
 
+from speccat.archive.widths import STRING_LENGTHS
+from speccat.archive.widths import clip_strings as _clip_row
+from speccat.archive.widths import string_lengths as string_lengths
+
 metadata = MetaData()
 
 #: Index of detections in the default (snr, id) order that also holds the range/glob filters'
@@ -43,17 +46,22 @@ def _pk() -> Column[int]:
     return Column("id", _ID, primary_key=True, autoincrement=True)
 
 
+def _str(table: str, name: str, **options: Any) -> Column[str]:
+    """A ``String(n)`` column, n from ``widths.STRING_LENGTHS`` (the workers clip rows with it)."""
+    return Column(name, String(STRING_LENGTHS[table][name]), **options)
+
+
 schema_version = Table("schema_version", metadata, Column("version", Integer, nullable=False))
 
 runs = Table(
     "runs",
     metadata,
     _pk(),
-    Column("user", String(200), nullable=False),
-    Column("host", String(200), nullable=False),
+    _str("runs", "user", nullable=False),
+    _str("runs", "host", nullable=False),
     Column("started_utc", DateTime, nullable=False),
     Column("finished_utc", DateTime),
-    Column("speccat_version", String(50), nullable=False),
+    _str("runs", "speccat_version", nullable=False),
     Column("parameters", Text, nullable=False),
     Column("counts", Text),
 )
@@ -64,9 +72,9 @@ files = Table(
     _pk(),
     Column("path", Text, nullable=False),
     Column("size_bytes", BigInteger, nullable=False),
-    Column("sha256", String(64), nullable=False, unique=True),
+    _str("files", "sha256", nullable=False, unique=True),
     Column("run_id", _ID, ForeignKey("runs.id"), nullable=False),
-    Column("night", String(100), nullable=False),
+    _str("files", "night", nullable=False),
     Index("ix_files_night", "night"),
 )
 
@@ -77,7 +85,7 @@ failures = Table(
     Column("run_id", _ID, ForeignKey("runs.id"), nullable=False),
     Column("path", Text, nullable=False),
     Column("reason", Text, nullable=False),
-    Column("night", String(100)),
+    _str("failures", "night"),
     Index("ix_failures_run", "run_id"),
 )
 
@@ -88,25 +96,25 @@ spectra = Table(
     Column("file_id", _ID, ForeignKey("files.id", ondelete="CASCADE"), nullable=False),
     Column("hdu", Integer),
     Column("row", Integer),
-    Column("source", String(200), nullable=False),
+    _str("spectra", "source", nullable=False),
     Column("ra_deg", Float),
     Column("dec_deg", Float),
     Column("obs_time", DateTime),
-    Column("night", String(100), nullable=False),
+    _str("spectra", "night", nullable=False),
     Column("site_lon_deg", Float),
     Column("site_lat_deg", Float),
     Column("site_height_m", Float),
-    Column("telescope", String(200), nullable=False),
-    Column("specsys", String(40), nullable=False),
+    _str("spectra", "telescope", nullable=False),
+    _str("spectra", "specsys", nullable=False),
     Column("rest_freq_hz", Float),
-    Column("velocity_convention", String(20)),
+    _str("spectra", "velocity_convention"),
     Column("velosys_ms", Float),
     Column("lsrk_factor", Float, nullable=False),
-    Column("frame_flag", String(100)),
+    _str("spectra", "frame_flag"),
     Column("stokes", Text, nullable=False),  # JSON list, order of the products in ``data``
-    Column("primary_stokes", String(10), nullable=False),
+    _str("spectra", "primary_stokes", nullable=False),
     Column("n_channels", Integer, nullable=False),
-    Column("intensity_unit", String(40), nullable=False),
+    _str("spectra", "intensity_unit", nullable=False),
     Column("rms", Float),
     Column("continuum", Float),
     Column("baseline", Text, nullable=False),  # JSON of BaselineModel fields
@@ -137,7 +145,7 @@ detections = Table(
     metadata,
     _pk(),
     Column("spectrum_id", _ID, ForeignKey("spectra.id", ondelete="CASCADE"), nullable=False),
-    Column("stokes", String(10), nullable=False),
+    _str("detections", "stokes", nullable=False),
     # LineFit, on the file's own frequency axis
     Column("center_hz", Float),
     Column("center_err_hz", Float),
@@ -153,8 +161,8 @@ detections = Table(
     Column("fwhm_chan", Float),
     Column("snr", Float),
     Column("chi2_red", Float),
-    Column("kind", String(20), nullable=False),
-    Column("profile", String(20), nullable=False),
+    _str("detections", "kind", nullable=False),
+    _str("detections", "profile", nullable=False),
     Column("lorentz_fwhm_hz", Float),
     Column("lorentz_fwhm_err_hz", Float),
     Column("w50_hz", Float),
@@ -174,16 +182,16 @@ detections = Table(
     Column("b_los_ug", Float),
     Column("b_los_err_ug", Float),
     # primary identification (NULL when unidentified)
-    Column("species", String(100)),
-    Column("species_lc", String(100)),
-    Column("line", String(100)),
-    Column("transition", String(200)),
+    _str("detections", "species"),
+    _str("detections", "species_lc"),
+    _str("detections", "line"),
+    _str("detections", "transition"),
     Column("rest_freq_hz", Float),
     Column("id_score", Float),
     # copied from the spectrum for one-table filters
-    Column("source", String(200), nullable=False),
-    Column("source_lc", String(200), nullable=False),
-    Column("night", String(100), nullable=False),
+    _str("detections", "source", nullable=False),
+    _str("detections", "source_lc", nullable=False),
+    _str("detections", "night", nullable=False),
     Column("obs_time", DateTime),
     Index("ix_det_spectrum", "spectrum_id"),
     # default order (snr desc, id desc); equality filters + default order read one index range
@@ -225,9 +233,9 @@ candidates = Table(
     _pk(),
     Column("detection_id", _ID, ForeignKey("detections.id", ondelete="CASCADE"), nullable=False),
     Column("rank", Integer, nullable=False),
-    Column("name", String(100), nullable=False),
-    Column("species", String(100), nullable=False),
-    Column("transition", String(200), nullable=False),
+    _str("candidates", "name", nullable=False),
+    _str("candidates", "species", nullable=False),
+    _str("candidates", "transition", nullable=False),
     Column("rest_freq_hz", Float),
     Column("v_lsr_kms", Float),
     Column("score", Float),
@@ -238,7 +246,7 @@ sources = Table(
     "sources",
     metadata,
     _pk(),
-    Column("name", String(200), nullable=False, unique=True),
+    _str("sources", "name", nullable=False, unique=True),
     Column("ra_deg", Float),
     Column("dec_deg", Float),
     Column("v_sys_kms", Float),
@@ -250,11 +258,11 @@ lines = Table(
     "lines",
     metadata,
     _pk(),
-    Column("name", String(100), nullable=False, unique=True),
-    Column("species", String(100), nullable=False),
-    Column("transition", String(200), nullable=False),
+    _str("lines", "name", nullable=False, unique=True),
+    _str("lines", "species", nullable=False),
+    _str("lines", "transition", nullable=False),
     Column("rest_freq_hz", Float, nullable=False),
-    Column("line_class", String(40)),
+    _str("lines", "line_class"),
     Column("reference", Text, nullable=False),
 )
 
@@ -276,25 +284,6 @@ MIGRATIONS: list[Callable[[Connection], None]] = [_v1_create, _v2_walk_index]
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
-@cache
-def string_lengths(table_name: str) -> dict[str, int]:
-    """Column name -> maximum length of every ``String(n)`` column of a table."""
-    table = metadata.tables[table_name]
-    return {
-        c.name: c.type.length
-        for c in table.columns
-        if isinstance(c.type, String) and c.type.length is not None
-    }
-
-
 def clip_strings(table: Table, row: MutableMapping[str, Any]) -> bool:
-    """Cut, in place, every string longer than its ``String(n)`` column to n characters
-    (PostgreSQL refuses an over-long value and with it the whole transaction; SQLite would
-    keep it). Returns True when anything was cut."""
-    clipped = False
-    for name, length in string_lengths(table.name).items():
-        value = row.get(name)
-        if isinstance(value, str) and len(value) > length:
-            row[name] = value[:length]
-            clipped = True
-    return clipped
+    """``widths.clip_strings`` for a table of this schema (True when anything was cut)."""
+    return _clip_row(table.name, row)
