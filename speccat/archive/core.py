@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import getpass
 import json
+import os
 import socket
 from collections.abc import Iterable, Iterator, Mapping
 from contextlib import contextmanager
@@ -115,10 +116,34 @@ class Archive(QueryMixin):
         if found == 0 and not create:
             raise ArchiveError(f"no speccat archive at {self.url}; run speccat ingest first")
         if self._writer is None:
-            raise ArchiveError(
-                f"{self.url}: schema version {found} needs a migration; open it writable"
-            )
+            self._upgrade_for_reading(found)
+            return
         self.migrate()
+
+    def _upgrade_for_reading(self, found: int) -> None:
+        """Migrate an archive written by an older speccat that was opened read-only, through a
+        writer of its own (the migrations only add indexes and tables; one transaction), so
+        that reading commands work after an upgrade of speccat. A clear error when the archive
+        cannot be written here."""
+        why = ""
+        path = eng.sqlite_path(self.target)
+        if path is not None and not (os.access(path, os.W_OK) and os.access(path.parent, os.W_OK)):
+            why = "the file or its folder is read-only"
+        if not why:
+            _, writer, dialect = eng.make_engines(self.target, readonly=False)
+            upgrader = Archive(self.target, writer or self._reader, writer, dialect)
+            try:
+                upgrader.migrate()
+                return
+            except ArchiveError as exc:
+                why = str(exc).removeprefix(f"{self.url}: ")
+            finally:
+                upgrader.close()
+        raise ArchiveError(
+            f"{self.url}: archive schema version {found} is older than this speccat's "
+            f"({SCHEMA_VERSION}) and cannot be upgraded here ({why}); open it once with write "
+            "access (e.g. speccat ingest)"
+        )
 
     def _version(self, conn: Connection) -> int:
         names = set(inspect(conn).get_table_names())

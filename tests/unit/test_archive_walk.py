@@ -4,6 +4,7 @@ index keeps every row."""
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import Any
 
@@ -93,22 +94,54 @@ def test_explain_of_the_walk_reads_the_covering_index(tmp_path: Path) -> None:
     assert f"COVERING INDEX {WALK_INDEX}" in shown and "TEMP B-TREE" not in shown
 
 
-def test_version_1_archive_is_migrated_with_its_rows_kept(tmp_path: Path) -> None:
-    url = str(tmp_path / "old.sqlite")
+def _make_version_1(url: str) -> dict[str, Any]:
+    """A filled archive turned into a version-1 one; returns its table checksums."""
     archive, _ = fill_archive(url, range(3))
     with archive:
         before = table_checksums(archive)
-        with archive._write() as conn:  # make it a version-1 archive
+        with archive._write() as conn:
             conn.execute(text(f"DROP INDEX {WALK_INDEX}"))
             conn.execute(text("UPDATE schema_version SET version = 1"))
-    with pytest.raises(ArchiveError, match="schema version 1 needs a migration"):
-        Archive.open(url, readonly=True)
-    with Archive.open(url) as migrated:
+    return before
+
+
+def _version_and_names(archive: Archive) -> tuple[int, set[str]]:
+    with archive._reader.connect() as conn:
+        version = conn.execute(text("SELECT version FROM schema_version")).scalar_one()
+        names = set(conn.execute(text("SELECT name FROM sqlite_master")).scalars())
+    return int(version), names
+
+
+@pytest.mark.parametrize("readonly", [False, True])
+def test_version_1_archive_is_migrated_with_its_rows_kept(tmp_path: Path, readonly: bool) -> None:
+    # a reading command (query, export, report, browse opens read-only) upgrades it too
+    url = str(tmp_path / "old.sqlite")
+    before = _make_version_1(url)
+    with Archive.open(url, readonly=readonly) as migrated:
+        assert migrated.readonly == readonly
         assert table_checksums(migrated) == before
-        with migrated._reader.connect() as conn:
-            version = conn.execute(text("SELECT version FROM schema_version")).scalar_one()
-            names = set(conn.execute(text("SELECT name FROM sqlite_master")).scalars())
+        version, names = _version_and_names(migrated)
+        assert migrated.count(Filters.parse({"vel": "-100:100"})) >= 0  # the walk works
     assert version == SCHEMA_VERSION == 2 and WALK_INDEX in names
+
+
+def test_version_1_archive_that_cannot_be_written_gets_a_clear_error(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    url = str(tmp_path / "old.sqlite")
+    before = _make_version_1(url)
+    real_access = os.access
+    # as for a file the user may not write (the tests may run as root, who may write anything)
+    monkeypatch.setattr(
+        "speccat.archive.core.os.access",
+        lambda p, mode: False if mode & os.W_OK else real_access(p, mode),
+    )
+    with pytest.raises(ArchiveError, match=r"schema version 1 is older .* read-only\); open it"):
+        Archive.open(url, readonly=True)
+    monkeypatch.undo()
+    with Archive.open(url) as unchanged:
+        assert _version_and_names(unchanged)[0] == SCHEMA_VERSION  # upgraded only now
+        assert table_checksums(unchanged) == before
 
 
 def test_count_can_stop_early(filled_archive: Any) -> None:
