@@ -158,6 +158,17 @@ class Catalogue:
     def __repr__(self) -> str:
         return f"Catalogue({len(self)} lines)"
 
+    def __getstate__(self) -> dict[str, Any]:
+        """Pickled (as for the ingest workers) without the lines made on demand or the cached
+        ``lines``/``groups``: once every line is made, the built-in catalogue would otherwise
+        pickle to 2.6 MB and take ~140 ms to load instead of 0.5 MB and ~10 ms (measured)."""
+        state = {k: v for k, v in self.__dict__.items() if k not in ("lines", "groups")}
+        state["_made"] = [
+            None if type(entry) is tuple else made
+            for entry, made in zip(self._entries, self._made, strict=True)
+        ]
+        return state
+
     @cached_property
     def lines(self) -> tuple[CatalogueLine, ...]:
         """Every line, sorted by rest frequency."""

@@ -1,0 +1,91 @@
+"""An ingest worker starts light: no SQLAlchemy, no astropy.constants (it is given the parent's
+catalogue instead of building its own), and its results are those of a catalogue it built."""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import pickle
+import subprocess
+import sys
+from pathlib import Path
+
+from speccat import pipeline
+from speccat.catalogue import Catalogue
+from speccat.catalogue.loader import curated_lines, recombination_series
+from speccat.config import Settings
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_archive"
+FILES = [SAMPLE / "core04_co.fits", SAMPLE / "cloud05_oh_zeeman.fits", SAMPLE / "core06_cs.csv"]
+
+#: A real forkserver pool set up as the ingest sets it up: it measures the files named in argv,
+#: then reports which heavy modules its worker had to import.
+POOL = """
+import multiprocessing as mp, sys
+from concurrent.futures import ProcessPoolExecutor
+from speccat.config import Settings
+from speccat.pipeline import _init_worker, _shared_catalogue, prepare_files
+ctx = mp.get_context("forkserver")
+args = (Settings(), {}, None, _shared_catalogue(Settings(), ctx))
+with ProcessPoolExecutor(1, mp_context=ctx, initializer=_init_worker, initargs=args) as pool:
+    for prepared in pool.submit(prepare_files, sys.argv[1:]).result():
+        assert prepared.error is None and prepared.spectra, (prepared.path, prepared.error)
+    heavy = "[m for m in ('sqlalchemy', 'astropy.constants') if m in __import__('sys').modules]"
+    print(",".join(pool.submit(eval, heavy).result()))
+"""
+
+
+def test_a_pool_worker_imports_no_sqlalchemy_and_no_astropy_constants() -> None:
+    out = subprocess.run(
+        [sys.executable, "-c", POOL, *map(str, FILES)], capture_output=True, text=True, check=True
+    )
+    assert out.stdout.strip() == ""
+
+
+def _fresh() -> Catalogue:
+    return Catalogue(curated_lines(), computed=recombination_series())
+
+
+def test_catalogue_pickles_whole_and_without_its_made_lines() -> None:
+    used = _fresh()
+    assert used.by_name("H109a").n == 109  # makes lines on demand ...
+    assert len(used.lines) == len(used)  # ... and caches them all
+    copy = pickle.loads(pickle.dumps(used, protocol=pickle.HIGHEST_PROTOCOL))
+    assert copy.lines == used.lines
+    assert copy.names == used.names
+    assert copy.groups == used.groups
+    assert copy.by_name("H109alpha") == used.by_name("H109a")
+    assert copy.between(4.9e9, 5.1e9) == used.between(4.9e9, 5.1e9)
+    assert (copy.rest_freq_hz == used.rest_freq_hz).all()
+    assert not copy.rest_freq_hz.flags.writeable
+    # the lines made on demand are not sent: the pickle of a catalogue never used
+    assert len(pickle.dumps(used)) == len(pickle.dumps(_fresh()))
+
+
+def test_worker_results_with_the_parents_catalogue_equal_a_self_built_one() -> None:
+    paths = [str(p) for p in FILES]
+    settings = Settings()
+    shared = pipeline._shared_catalogue(settings, mp.get_context("forkserver"))
+    assert shared is not None
+    try:
+        pipeline._init_worker(settings, {})  # builds its own on first use
+        own = pipeline.prepare_files(paths)
+        pipeline._init_worker(settings, {}, None, shared)
+        assert pipeline._STATE is not None and pipeline._STATE.catalogue is not None
+        given = pipeline.prepare_files(paths)
+    finally:
+        pipeline._STATE = None
+    assert all(p.error is None for p in own)
+    assert sum(len(s.detections) for p in own for s in p.spectra) > 0
+    assert given == own
+
+
+def test_a_catalogue_that_cannot_load_is_left_to_the_workers(tmp_path: Path) -> None:
+    settings = Settings(catalogue=str(tmp_path / "missing.csv"))
+    shared = pipeline._shared_catalogue(settings, mp.get_context("forkserver"))
+    assert shared is None
+    try:
+        pipeline._init_worker(settings, {}, None, shared)
+        [failed] = pipeline.prepare_files([str(FILES[0])])
+    finally:
+        pipeline._STATE = None
+    assert failed.error is not None and "missing.csv" in failed.error
