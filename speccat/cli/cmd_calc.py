@@ -10,10 +10,8 @@ import sys
 from collections.abc import Callable
 from typing import Any
 
-import astropy.units as u
-
 from speccat.errors import PhysicsError
-from speccat.quantities import parse_quantity
+from speccat.quantities import parse_value
 
 NAME = "calc"
 HELP = "physical calculators: kinematic distance, T_e, y+, HI column and mass, Zeeman, N_e"
@@ -73,21 +71,22 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     ])  # fmt: skip
 
 
-def _value(args: argparse.Namespace, name: str, unit: Any, default: float | None = None) -> float:
+def _value(args: argparse.Namespace, name: str, unit: str, default: float | None = None) -> float:
+    """The flag's value in ``unit`` (an astropy unit string; "" for a pure number)."""
     raw = getattr(args, name.replace("-", "_"))
     if raw is None:
         if default is None:
             raise PhysicsError(f"calc {args.calc}: --{name} is required")
         return default
-    return float(parse_quantity(str(raw), unit, f"--{name}").value)
+    return parse_value(str(raw), unit, f"--{name}")
 
 
 def _distance(args: argparse.Namespace) -> dict[str, Any]:
     from speccat.physics import kinematic
 
-    kms = u.km / u.s
+    kms = "km/s"
     sol = kinematic.kinematic_distance(
-        _value(args, "l", u.deg), _value(args, "b", u.deg, 0.0), _value(args, "vlsr", kms),
+        _value(args, "l", "deg"), _value(args, "b", "deg", 0.0), _value(args, "vlsr", kms),
         _value(args, "vlsr-err", kms, 0.0), args.curve or kinematic.DEFAULT_CURVE,
         _value(args, "streaming", kms, kinematic.STREAMING_KMS),
     )  # fmt: skip
@@ -97,22 +96,22 @@ def _distance(args: argparse.Namespace) -> dict[str, Any]:
 def _te(args: argparse.Namespace) -> dict[str, Any]:
     from speccat.physics import diagnostics
 
-    y = _value(args, "y", u.one, diagnostics.Y_PLUS_DEFAULT)
-    te = diagnostics.te_lte_k(_value(args, "freq", u.GHz), _value(args, "line-to-continuum", u.one),
-                              _value(args, "fwhm", u.km / u.s), y)  # fmt: skip
+    y = _value(args, "y", "", diagnostics.Y_PLUS_DEFAULT)
+    te = diagnostics.te_lte_k(_value(args, "freq", "GHz"), _value(args, "line-to-continuum", ""),
+                              _value(args, "fwhm", "km/s"), y)  # fmt: skip
     return {"te_k": te, "y_plus": y}
 
 
 def _helium(args: argparse.Namespace) -> dict[str, Any]:
     from speccat.physics import diagnostics
 
-    return {"y_plus": diagnostics.y_plus(_value(args, "he", u.one), _value(args, "h", u.one))}
+    return {"y_plus": diagnostics.y_plus(_value(args, "he", ""), _value(args, "h", ""))}
 
 
 def _hi(args: argparse.Namespace) -> dict[str, Any]:
     from speccat.physics import diagnostics
 
-    return {"n_hi_cm2": diagnostics.n_hi_cm2(_value(args, "integral", u.K * u.km / u.s))}
+    return {"n_hi_cm2": diagnostics.n_hi_cm2(_value(args, "integral", "K km/s"))}
 
 
 def _hi_mass(args: argparse.Namespace) -> dict[str, Any]:
@@ -121,11 +120,11 @@ def _hi_mass(args: argparse.Namespace) -> dict[str, Any]:
     if (args.dist is None) == (args.vsys is None):
         raise PhysicsError("calc hi-mass: give exactly one of --dist or --vsys")
     if args.dist is not None:
-        dist = _value(args, "dist", u.Mpc)
+        dist = _value(args, "dist", "Mpc")
     else:
-        h0 = _value(args, "h0", u.km / u.s / u.Mpc, diagnostics.H0_DEFAULT)
-        dist = diagnostics.hubble_distance_mpc(_value(args, "vsys", u.km / u.s), h0)
-    flux = _value(args, "flux", u.Jy * u.km / u.s)
+        h0 = _value(args, "h0", "km/(s Mpc)", diagnostics.H0_DEFAULT)
+        dist = diagnostics.hubble_distance_mpc(_value(args, "vsys", "km/s"), h0)
+    flux = _value(args, "flux", "Jy km/s")
     return {"m_hi_msun": diagnostics.hi_mass_msun(flux, dist), "dist_mpc": dist}
 
 
@@ -142,15 +141,15 @@ def _zeeman(args: argparse.Namespace) -> dict[str, Any]:
                                f"(known: {', '.join(zeeman.SPLIT_HZ_PER_UG)})")  # fmt: skip
         factor = zeeman.SPLIT_HZ_PER_UG[key]
     else:
-        factor = _value(args, "factor", u.one)
+        factor = _value(args, "factor", "")
         if not factor > 0:
             raise PhysicsError("calc zeeman: --factor must be positive")
     if (args.split is None) == (args.coefficient is None):
         raise PhysicsError("calc zeeman: give exactly one of --split or --coefficient")
     if args.split is not None:
-        b = zeeman.field_from_split(_value(args, "split", u.Hz), factor)
+        b = zeeman.field_from_split(_value(args, "split", "Hz"), factor)
     else:
-        b = zeeman.field_from_coefficient(_value(args, "coefficient", u.Hz), factor)
+        b = zeeman.field_from_coefficient(_value(args, "coefficient", "Hz"), factor)
     return {"b_los_ug": b, "split_hz_per_ug": factor}
 
 
@@ -166,12 +165,12 @@ def _density(args: argparse.Namespace) -> dict[str, Any]:
                                "name such as H166a")  # fmt: skip
         n = int(match.group(2))
     else:
-        n_value = _value(args, "n", u.one)
+        n_value = _value(args, "n", "")
         if n_value != math.floor(n_value):
             raise PhysicsError(f"calc density: --n must be an integer, got {args.n}")
         n = int(n_value)
-    te = _value(args, "te", u.K, 1.0e4)
-    ne = diagnostics.ne_from_lorentz_cm3(_value(args, "lorentz-fwhm", u.Hz), n, te)
+    te = _value(args, "te", "K", 1.0e4)
+    ne = diagnostics.ne_from_lorentz_cm3(_value(args, "lorentz-fwhm", "Hz"), n, te)
     return {"ne_cm3": ne, "n": n, "te_k": te}
 
 

@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import argparse
 import re
+from typing import TYPE_CHECKING
 
-from speccat.archive.filters import Filters
+if TYPE_CHECKING:  # the archive side (SQLAlchemy) loads only when a command filters
+    from speccat.archive.filters import Filters
 
 #: flag name -> key of ``Filters.parse``
 FILTER_FLAGS: dict[str, str] = {
@@ -53,6 +55,8 @@ def add_filter_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def filters_from_args(args: argparse.Namespace) -> Filters:
+    from speccat.archive.filters import Filters
+
     values: dict[str, object] = {
         key: getattr(args, flag, None) for flag, key in FILTER_FLAGS.items()
     }
