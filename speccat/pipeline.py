@@ -126,6 +126,35 @@ def _init_worker(
         pids.put(os.getpid())
 
 
+#: What a worker imports to read, reduce, identify and build rows: imported once in the
+#: forkserver, from which every worker is forked with them loaded (``_worker_context``).
+WORKER_MODULES = (
+    "speccat.pipeline",
+    "speccat.io",
+    "speccat.reduce",
+    "speccat.identify",
+    "speccat.physics.zeeman",
+    "speccat.archive.rows",
+    "speccat.catalogue",
+)
+
+
+def _worker_context() -> Any:
+    """The pools' multiprocessing context: forkserver, so that workers never inherit the
+    writer's open database connections, with ``WORKER_MODULES`` preloaded in the server.
+
+    The imports (numpy, scipy.optimize...) are then paid once per ingest, in the server, not
+    ~1 s of CPU in each worker; and a later pool (one file at a time after a worker died, the
+    next ingest in the same process) starts at once. The preload applies when the server
+    starts, i.e. at the first pool of the process.
+    """
+    import multiprocessing as mp
+
+    ctx = mp.get_context("forkserver")
+    ctx.set_forkserver_preload(["__main__", *WORKER_MODULES])  # "__main__": as by default
+    return ctx
+
+
 def _shared_catalogue(settings: Settings, ctx: Any) -> Any:
     """The catalogue, loaded once here and pickled into shared memory for the workers.
 
@@ -390,11 +419,9 @@ def _pool_pass(
     """Run files from ``todo`` in a process pool, ``chunk`` files per task and at most
     ``window`` files in flight, until it is empty or the pool breaks; returns the files that
     were in flight when a worker died."""
-    import multiprocessing as mp
     from concurrent.futures.process import BrokenProcessPool
 
-    # forkserver: workers never inherit the writer's open database connections.
-    ctx = mp.get_context("forkserver")
+    ctx = _worker_context()
     pids = ctx.SimpleQueue()
     in_flight: dict[Future[list[PreparedFile]], list[str]] = {}
     n_flight = 0

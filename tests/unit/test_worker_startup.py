@@ -1,8 +1,10 @@
-"""An ingest worker starts light: no SQLAlchemy, no astropy.constants (it is given the parent's
-catalogue instead of building its own), and its results are those of a catalogue it built."""
+"""An ingest worker starts light: forked with its modules already imported, without SQLAlchemy
+or astropy.constants (it is given the parent's catalogue instead of building its own), and its
+results are those of a catalogue it built."""
 
 from __future__ import annotations
 
+import importlib
 import multiprocessing as mp
 import pickle
 import subprocess
@@ -17,16 +19,18 @@ from speccat.config import Settings
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_archive"
 FILES = [SAMPLE / "core04_co.fits", SAMPLE / "cloud05_oh_zeeman.fits", SAMPLE / "core06_cs.csv"]
 
-#: A real forkserver pool set up as the ingest sets it up: it measures the files named in argv,
-#: then reports which heavy modules its worker had to import.
+#: A pool set up as the ingest sets it up: it reports the modules its worker starts with, then
+#: measures the files named in argv and reports which heavy modules it had to import.
 POOL = """
-import multiprocessing as mp, sys
+import sys
 from concurrent.futures import ProcessPoolExecutor
 from speccat.config import Settings
-from speccat.pipeline import _init_worker, _shared_catalogue, prepare_files
-ctx = mp.get_context("forkserver")
+from speccat.pipeline import _init_worker, _shared_catalogue, _worker_context, prepare_files
+ctx = _worker_context()
 args = (Settings(), {}, None, _shared_catalogue(Settings(), ctx))
+modules = "sorted(__import__('sys').modules)"
 with ProcessPoolExecutor(1, mp_context=ctx, initializer=_init_worker, initargs=args) as pool:
+    print(",".join(pool.submit(eval, modules).result()))
     for prepared in pool.submit(prepare_files, sys.argv[1:]).result():
         assert prepared.error is None and prepared.spectra, (prepared.path, prepared.error)
     heavy = "[m for m in ('sqlalchemy', 'astropy.constants') if m in __import__('sys').modules]"
@@ -34,11 +38,20 @@ with ProcessPoolExecutor(1, mp_context=ctx, initializer=_init_worker, initargs=a
 """
 
 
-def test_a_pool_worker_imports_no_sqlalchemy_and_no_astropy_constants() -> None:
+def test_a_pool_worker_starts_with_its_modules_and_imports_no_database_or_constants() -> None:
     out = subprocess.run(
         [sys.executable, "-c", POOL, *map(str, FILES)], capture_output=True, text=True, check=True
     )
-    assert out.stdout.strip() == ""
+    at_start, heavy = out.stdout.splitlines()
+    assert set(pipeline.WORKER_MODULES) | {"scipy.optimize"} <= set(at_start.split(","))
+    assert heavy == ""
+
+
+def test_every_preloaded_module_exists() -> None:
+    """The forkserver skips a preload it cannot import without a word: a renamed module would
+    quietly bring back its import in every worker."""
+    for name in pipeline.WORKER_MODULES:
+        importlib.import_module(name)
 
 
 def _fresh() -> Catalogue:
