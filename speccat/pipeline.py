@@ -146,12 +146,15 @@ def _worker_context() -> Any:
     The imports (numpy, scipy.optimize...) are then paid once per ingest, in the server, not
     ~1 s of CPU in each worker; and a later pool (one file at a time after a worker died, the
     next ingest in the same process) starts at once. The preload applies when the server
-    starts, i.e. at the first pool of the process.
+    starts, i.e. at the first pool of the process; it is started here, so that its imports
+    run while this process loads the catalogue (``_shared_catalogue``).
     """
     import multiprocessing as mp
+    from multiprocessing import forkserver
 
     ctx = mp.get_context("forkserver")
     ctx.set_forkserver_preload(["__main__", *WORKER_MODULES])  # "__main__": as by default
+    forkserver.ensure_running()
     return ctx
 
 
