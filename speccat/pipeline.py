@@ -113,15 +113,17 @@ _STATE: _WorkerState | None = None
 
 def _init_worker(
     settings: Settings,
-    known_velocities: dict[str, float],
+    known_velocities: Any,
     pids: Any = None,
     catalogue: Any = None,
 ) -> None:
     """Worker set-up; ``pids`` (a queue) learns the worker's process id (see ``_pool_pass``);
-    ``catalogue`` is the parent's, pickled in shared memory (``_shared_catalogue``), or None to
-    load it on first use."""
+    ``known_velocities`` is a dict or the parent's in shared memory (``_shared``);
+    ``catalogue`` is the parent's in shared memory (``_shared_catalogue``), or None to load it
+    on first use."""
     global _STATE
-    _STATE = _WorkerState(settings, dict(known_velocities), _unpickle_catalogue(catalogue))
+    known = known_velocities if isinstance(known_velocities, dict) else _unshared(known_velocities)
+    _STATE = _WorkerState(settings, dict(known or {}), _unshared(catalogue))
     if pids is not None:
         pids.put(os.getpid())
 
@@ -159,40 +161,44 @@ def _worker_context() -> Any:
 
 
 def _shared_catalogue(settings: Settings, ctx: Any) -> Any:
-    """The catalogue, loaded once here and pickled into shared memory for the workers.
-
-    Building it imports astropy.constants (~0.35 s of CPU), which every worker that unpickles
-    it instead (0.5 MB, ~10 ms) is spared. Shared memory, not plain initargs: those go down a
-    pipe as each worker starts, where a write this large waits for the worker to read it, and a
-    worker killed meanwhile would end the ingest with BrokenPipeError; of shared memory only a
-    file descriptor is sent. None when the catalogue cannot be loaded: each worker then loads
-    its own, and its files fail with the reason.
+    """The catalogue, loaded once here and pickled into shared memory for the workers
+    (``_shared``). Building it imports astropy.constants (~0.35 s of CPU), which every worker
+    that unpickles it instead (0.5 MB, ~10 ms) is spared. None when the catalogue cannot be
+    loaded: each worker then loads its own, and its files fail with the reason.
     """
-    import pickle
-
     from speccat.catalogue import load
 
     try:
-        data = pickle.dumps(load(settings.catalogue or None), protocol=pickle.HIGHEST_PROTOCOL)
+        return _shared(load(settings.catalogue or None), ctx)
     except Exception:  # the workers meet it again and report it for each file
         return None
+
+
+def _shared(obj: Any, ctx: Any) -> Any:
+    """``obj`` pickled into shared memory, for a pool's initargs. Plain initargs go down a pipe
+    as each worker starts, where a write over the pipe's 64 kB waits for the worker to read it,
+    and a worker killed meanwhile would break the write; of shared memory only a file
+    descriptor is sent, so the initargs stay small whatever the catalogue or the number of
+    known sources."""
+    import pickle
+
+    data = pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL)
     shared = ctx.RawArray("c", len(data))
     shared.raw = data
     return shared
 
 
-def _unpickle_catalogue(shared: Any) -> Catalogue | None:
-    """The catalogue of ``_shared_catalogue``; None (load it on first use) if it cannot be read:
-    a worker set-up that raised would break the whole pool."""
+def _unshared(shared: Any) -> Any:
+    """The object of ``_shared``; None if there is none or it cannot be read (a worker set-up
+    that raised would break the whole pool)."""
     if shared is None:
         return None
     import pickle
 
     try:
-        catalogue: Catalogue = pickle.loads(shared.raw)
+        return pickle.loads(shared.raw)
     except Exception:
         return None
-    return catalogue
 
 
 def _catalogue(state: _WorkerState) -> Catalogue:
@@ -428,7 +434,7 @@ def _pool_pass(
     pids = ctx.SimpleQueue()
     in_flight: dict[Future[list[PreparedFile]], list[str]] = {}
     n_flight = 0
-    initargs = (settings, known, pids, _shared_catalogue(settings, ctx))
+    initargs = (settings, _shared(known, ctx), pids, _shared_catalogue(settings, ctx))
     pool = ProcessPoolExecutor(jobs, mp_context=ctx, initializer=_init_worker, initargs=initargs)
     broken = False
     try:
@@ -437,9 +443,10 @@ def _pool_pass(
                 task = [todo.popleft() for _ in range(min(chunk, len(todo)))]
                 try:
                     fut = pool.submit(prepare_files, task)
-                except BrokenProcessPool:
+                except (BrokenProcessPool, OSError) as exc:
+                    # OSError: a worker being started died before it read its start-up data
                     todo.extendleft(reversed(task))  # not sent: still to do
-                    raise
+                    raise BrokenProcessPool(str(exc)) from exc
                 in_flight[fut] = task
                 n_flight += len(task)
             done, _ = wait(in_flight, return_when=FIRST_COMPLETED)

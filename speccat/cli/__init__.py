@@ -58,4 +58,19 @@ def main(argv: list[str] | None = None) -> int:
         print("speccat: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
-        return 0
+        if stdout_closed():  # the reader of the output went away (e.g. `| head`)
+            return 0
+        print("speccat: error: a pipe to another process broke unexpectedly", file=sys.stderr)
+        return 1
+
+
+def stdout_closed() -> bool:
+    """True when standard output is a pipe whose reading end is gone."""
+    import select
+
+    try:
+        poller = select.poll()
+        poller.register(sys.stdout.fileno(), select.POLLOUT)
+        return any(event & select.POLLERR for _, event in poller.poll(0))
+    except (AttributeError, OSError, ValueError):
+        return True  # no usable stdout: nothing more can be said there

@@ -11,6 +11,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from speccat import pipeline
 from speccat.catalogue import Catalogue
 from speccat.catalogue.loader import curated_lines, recombination_series
@@ -102,3 +104,33 @@ def test_a_catalogue_that_cannot_load_is_left_to_the_workers(tmp_path: Path) -> 
     finally:
         pipeline._STATE = None
     assert failed.error is not None and "missing.csv" in failed.error
+
+
+def test_many_known_sources_reach_the_workers_through_shared_memory() -> None:
+    # a group archive may know thousands of sources: their velocities must not go down the
+    # start-up pipe (over 64 kB a killed starting worker broke the ingest there)
+    known = {f"Src-{i:05d}": float(i % 300) - 150.0 for i in range(20_000)}
+    shared = pipeline._shared(known, mp.get_context("forkserver"))
+    assert len(pickle.dumps(known)) > 64 * 1024
+    try:
+        pipeline._init_worker(Settings(), shared)
+        assert pipeline._STATE is not None and pipeline._STATE.known_velocities == known
+    finally:
+        pipeline._STATE = None
+
+
+def test_a_broken_pipe_inside_a_command_is_an_error_not_a_quiet_exit(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from speccat import cli
+    from speccat.cli import cmd_catalogue
+
+    def broken(args: object) -> int:
+        raise BrokenPipeError("worker start-up pipe")
+
+    monkeypatch.setattr(cmd_catalogue, "run", broken)
+    monkeypatch.setattr(cli, "stdout_closed", lambda: False)
+    assert cli.main(["catalogue"]) == 1
+    assert "broke unexpectedly" in capsys.readouterr().err
+    monkeypatch.setattr(cli, "stdout_closed", lambda: True)  # `| head` went away: quiet
+    assert cli.main(["catalogue"]) == 0
