@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 
 from speccat.config import load_settings
@@ -41,7 +42,7 @@ def run(args: argparse.Namespace) -> int:
     from speccat.cli.common import console
     from speccat.cli.summary import print_ingest_summary
     from speccat.errors import SpeccatError
-    from speccat.pipeline import ingest
+    from speccat.pipeline import ingest, start_workers
 
     if args.jobs is not None and args.jobs < 1:
         raise SpeccatError("--jobs must be at least 1")
@@ -56,6 +57,7 @@ def run(args: argparse.Namespace) -> int:
             "detect_sigma": args.detect_sigma,
         }
     )
+    start_workers(args.jobs or settings.jobs or os.cpu_count() or 1)
     archive = Archive.open(settings.archive, create=True)
     try:
         show_bar = sys.stderr.isatty() and not args.json
