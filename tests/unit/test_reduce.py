@@ -244,3 +244,23 @@ def test_heavy_tailed_noise_is_bounded_and_work_counter_reset(rng: np.random.Gen
     assert len(m.lines) <= 20
     assert all(np.isfinite(ln.center_hz) and np.isfinite(ln.peak) for ln in m.lines)
     assert WORK.get() is None  # measure() leaves no state behind
+
+
+@pytest.mark.parametrize("rows", [1, 3])
+def test_direct_minpack_call_equals_scipy_leastsq(
+    rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch, rows: int
+) -> None:
+    # fit_components calls MINPACK's lmder directly; SciPy's leastsq (the fall-back) runs the
+    # same routine, so both give the same fit to the last bit
+    from speccat.reduce import fit
+
+    x = np.arange(120.0)
+    truth = [(5.0, 40.3, 4.0), (-2.0, 60.7, 6.0), (3.0, 80.2, 2.5)][:rows]
+    y = sum(_gauss(x, a, c, w * FWHM) for a, c, w in truth) + rng.normal(0.0, 0.3, x.size)
+    p0 = np.array([[a * 0.8, c - 0.7, np.log(w * 1.2)] for a, c, w in truth])
+    direct = fit.fit_components(x, y, p0, "gaussian")
+    monkeypatch.setattr(fit, "_scipy_lmder", None)
+    through_leastsq = fit.fit_components(x, y, p0, "gaussian")
+    assert direct.success and through_leastsq.success
+    assert np.array_equal(direct.params, through_leastsq.params)
+    assert np.array_equal(direct.cov, through_leastsq.cov)
