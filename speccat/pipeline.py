@@ -13,6 +13,7 @@ import os
 import platform
 import signal
 import stat
+import sys
 import threading
 import time
 from collections import Counter, deque
@@ -156,8 +157,51 @@ def _worker_context() -> Any:
 
     ctx = mp.get_context("forkserver")
     ctx.set_forkserver_preload(["__main__", *WORKER_MODULES])  # "__main__": as by default
-    forkserver.ensure_running()
+    with _stderr_to(_worker_log()):  # the server and every worker forked from it inherit it
+        forkserver.ensure_running()
     return ctx
+
+
+_WORKER_LOG: list[Any] = []
+
+
+def _worker_log() -> Any:
+    """The file that the forkserver and the workers write their standard error to, instead of
+    the terminal: what they have to say about a file comes back in its result, and what
+    Python 3.11's pool makes them print when a dying worker breaks it (EOFError tracebacks of
+    the survivors and of the server) would only garble the progress bar and alarm the user
+    about an ingest that still stores every file. Its last line is shown when the workers
+    cannot be started at all (``_worker_log_tail``)."""
+    if not _WORKER_LOG:
+        import tempfile
+
+        _WORKER_LOG.append(tempfile.TemporaryFile(prefix="speccat-workers-"))  # noqa: SIM115 (open for the process's life)
+    return _WORKER_LOG[0]
+
+
+def _worker_log_tail() -> str:
+    """The last non-empty line the workers wrote to their standard error, or ''."""
+    if not _WORKER_LOG:
+        return ""
+    log = _WORKER_LOG[0]
+    log.seek(0, os.SEEK_END)
+    log.seek(max(0, log.tell() - 4096))
+    lines = [ln.strip() for ln in log.read().decode("utf-8", "replace").splitlines()]
+    return next((ln for ln in reversed(lines) if ln), "")
+
+
+@contextmanager
+def _stderr_to(target: Any) -> Iterator[None]:
+    """File descriptor 2 points at ``target`` while the block runs (child processes started
+    then inherit it); this process's own standard error is restored after it."""
+    sys.stderr.flush()
+    saved = os.dup(2)
+    try:
+        os.dup2(target.fileno(), 2)
+        yield
+    finally:
+        os.dup2(saved, 2)
+        os.close(saved)
 
 
 def start_workers(jobs: int) -> None:
@@ -417,7 +461,11 @@ def _results(
         if not orphans and len(todo) == before:  # the pool broke before taking any file
             stalls += 1
             if stalls == 3:
-                raise SpeccatError("worker processes cannot be started (out of memory?)")
+                said = _worker_log_tail()
+                raise SpeccatError(
+                    "worker processes cannot be started"
+                    + (f" (a worker said: {said[:200]})" if said else " (out of memory?)")
+                )
             continue
         stalls = 0
         while orphans:  # one in flight at a time: a second death names its file
