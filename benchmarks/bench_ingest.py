@@ -128,7 +128,7 @@ def writer_only(path: Path, db: Path, n_files: int) -> tuple[float, float]:
     from dataclasses import replace
 
     from speccat.archive import Archive
-    from speccat.pipeline import prepare_files
+    from speccat.workers import prepare_files
 
     (prepared,) = prepare_files([str(path)])
     if prepared.error is not None:

@@ -1,7 +1,7 @@
 """Ingest worker start-up: CPU a worker spends until its first file is done, and the wall time
 until two workers have done two files, each from a fresh process.
 
-- speccat: the pool as ``speccat ingest`` sets it up (``pipeline._worker_context``: a
+- speccat: the pool as ``speccat ingest`` sets it up (``workers.worker_context``: a
   forkserver that preloads the worker modules; the parent's catalogue in shared memory);
 - baseline: a plain forkserver pool whose workers import their modules and build the catalogue
   themselves (how each worker started before; SQLAlchemy is no longer on that path either way).
@@ -25,24 +25,24 @@ from typing import Any
 SCRIPT = """
 import json, multiprocessing as mp, os, sys, time
 from concurrent.futures import ProcessPoolExecutor
-from speccat import pipeline
+from speccat import workers
 from speccat.config import Settings
 
 mode, files = sys.argv[1], sys.argv[2:]
 t0 = time.perf_counter()
 if mode == "speccat":
-    ctx = pipeline._worker_context()
-    args = (Settings(), {}, None, pipeline._shared_catalogue(Settings(), ctx))
+    ctx = workers.worker_context()
+    args = (Settings(), {}, None, workers.shared_catalogue(Settings(), ctx))
 else:
     ctx = mp.get_context("forkserver")
     args = (Settings(), {}, None, None)
 cpu_now = "__import__('time').process_time()"
-with ProcessPoolExecutor(2, mp_context=ctx, initializer=pipeline._init_worker, initargs=args) as pool:
-    for fut in [pool.submit(pipeline.prepare_files, [f]) for f in files]:
+with ProcessPoolExecutor(2, mp_context=ctx, initializer=workers.init_worker, initargs=args) as pool:
+    for fut in [pool.submit(workers.prepare_files, [f]) for f in files]:
         assert all(p.error is None for p in fut.result())
     wall = time.perf_counter() - t0
-with ProcessPoolExecutor(1, mp_context=ctx, initializer=pipeline._init_worker, initargs=args) as pool:
-    assert all(p.error is None for p in pool.submit(pipeline.prepare_files, files[:1]).result())
+with ProcessPoolExecutor(1, mp_context=ctx, initializer=workers.init_worker, initargs=args) as pool:
+    assert all(p.error is None for p in pool.submit(workers.prepare_files, files[:1]).result())
     worker_cpu = pool.submit(eval, cpu_now).result()
 
 def server_cpu():

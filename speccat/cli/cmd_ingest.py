@@ -42,7 +42,8 @@ def run(args: argparse.Namespace) -> int:
     from speccat.cli.common import console
     from speccat.cli.summary import print_ingest_summary
     from speccat.errors import SpeccatError
-    from speccat.pipeline import ingest, start_workers
+    from speccat.pipeline import ingest
+    from speccat.workers import start_workers
 
     if args.jobs is not None and args.jobs < 1:
         raise SpeccatError("--jobs must be at least 1")

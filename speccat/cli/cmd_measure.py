@@ -188,7 +188,7 @@ def _print_table(records: list[dict[str, Any]]) -> None:
 def run(args: argparse.Namespace) -> int:
     from speccat.catalogue import load
     from speccat.errors import SpeccatError
-    from speccat.pipeline import measure_file
+    from speccat.workers import measure_file
 
     settings = load_settings({"catalogue": args.catalogue, "detect_sigma": args.detect_sigma})
     catalogue = load(settings.catalogue or None)

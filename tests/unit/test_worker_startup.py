@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from speccat import pipeline
+from speccat import workers
 from speccat.catalogue import Catalogue
 from speccat.catalogue.loader import curated_lines, recombination_series
 from speccat.config import Settings
@@ -27,11 +27,11 @@ POOL = """
 import sys
 from concurrent.futures import ProcessPoolExecutor
 from speccat.config import Settings
-from speccat.pipeline import _init_worker, _shared_catalogue, _worker_context, prepare_files
-ctx = _worker_context()
-args = (Settings(), {}, None, _shared_catalogue(Settings(), ctx))
+from speccat.workers import init_worker, shared_catalogue, worker_context, prepare_files
+ctx = worker_context()
+args = (Settings(), {}, None, shared_catalogue(Settings(), ctx))
 modules = "sorted(__import__('sys').modules)"
-with ProcessPoolExecutor(1, mp_context=ctx, initializer=_init_worker, initargs=args) as pool:
+with ProcessPoolExecutor(1, mp_context=ctx, initializer=init_worker, initargs=args) as pool:
     print(",".join(pool.submit(eval, modules).result()))
     for prepared in pool.submit(prepare_files, sys.argv[1:]).result():
         assert prepared.error is None and prepared.spectra, (prepared.path, prepared.error)
@@ -45,14 +45,14 @@ def test_a_pool_worker_starts_with_its_modules_and_imports_no_database_or_consta
         [sys.executable, "-c", POOL, *map(str, FILES)], capture_output=True, text=True, check=True
     )
     at_start, heavy = out.stdout.splitlines()
-    assert set(pipeline.WORKER_MODULES) | {"scipy.optimize"} <= set(at_start.split(","))
+    assert set(workers.WORKER_MODULES) | {"scipy.optimize"} <= set(at_start.split(","))
     assert heavy == ""
 
 
 def test_every_preloaded_module_exists() -> None:
     """The forkserver skips a preload it cannot import without a word: a renamed module would
     quietly bring back its import in every worker."""
-    for name in pipeline.WORKER_MODULES:
+    for name in workers.WORKER_MODULES:
         importlib.import_module(name)
 
 
@@ -79,16 +79,16 @@ def test_catalogue_pickles_whole_and_without_its_made_lines() -> None:
 def test_worker_results_with_the_parents_catalogue_equal_a_self_built_one() -> None:
     paths = [str(p) for p in FILES]
     settings = Settings()
-    shared = pipeline._shared_catalogue(settings, mp.get_context("forkserver"))
+    shared = workers.shared_catalogue(settings, mp.get_context("forkserver"))
     assert shared is not None
     try:
-        pipeline._init_worker(settings, {})  # builds its own on first use
-        own = pipeline.prepare_files(paths)
-        pipeline._init_worker(settings, {}, None, shared)
-        assert pipeline._STATE is not None and pipeline._STATE.catalogue is not None
-        given = pipeline.prepare_files(paths)
+        workers.init_worker(settings, {})  # builds its own on first use
+        own = workers.prepare_files(paths)
+        workers.init_worker(settings, {}, None, shared)
+        assert workers._STATE is not None and workers._STATE.catalogue is not None
+        given = workers.prepare_files(paths)
     finally:
-        pipeline._STATE = None
+        workers._STATE = None
     assert all(p.error is None for p in own)
     assert sum(len(s.detections) for p in own for s in p.spectra) > 0
     assert given == own
@@ -96,13 +96,13 @@ def test_worker_results_with_the_parents_catalogue_equal_a_self_built_one() -> N
 
 def test_a_catalogue_that_cannot_load_is_left_to_the_workers(tmp_path: Path) -> None:
     settings = Settings(catalogue=str(tmp_path / "missing.csv"))
-    shared = pipeline._shared_catalogue(settings, mp.get_context("forkserver"))
+    shared = workers.shared_catalogue(settings, mp.get_context("forkserver"))
     assert shared is None
     try:
-        pipeline._init_worker(settings, {}, None, shared)
-        [failed] = pipeline.prepare_files([str(FILES[0])])
+        workers.init_worker(settings, {}, None, shared)
+        [failed] = workers.prepare_files([str(FILES[0])])
     finally:
-        pipeline._STATE = None
+        workers._STATE = None
     assert failed.error is not None and "missing.csv" in failed.error
 
 
@@ -110,13 +110,13 @@ def test_many_known_sources_reach_the_workers_through_shared_memory() -> None:
     # a group archive may know thousands of sources: their velocities must not go down the
     # start-up pipe (over 64 kB a killed starting worker broke the ingest there)
     known = {f"Src-{i:05d}": float(i % 300) - 150.0 for i in range(20_000)}
-    shared = pipeline._shared(known, mp.get_context("forkserver"))
+    shared = workers.to_shared(known, mp.get_context("forkserver"))
     assert len(pickle.dumps(known)) > 64 * 1024
     try:
-        pipeline._init_worker(Settings(), shared)
-        assert pipeline._STATE is not None and pipeline._STATE.known_velocities == known
+        workers.init_worker(Settings(), shared)
+        assert workers._STATE is not None and workers._STATE.known_velocities == known
     finally:
-        pipeline._STATE = None
+        workers._STATE = None
 
 
 def test_a_broken_pipe_inside_a_command_is_an_error_not_a_quiet_exit(
