@@ -317,3 +317,26 @@ def test_rotational_ladder_is_self_consistent(species: str) -> None:
     assert np.max(np.abs(resid)) < 5e-7, dict(zip(j.tolist(), resid.tolist(), strict=True))
     assert coef[1] > 0  # centrifugal distortion lowers the frequencies
     assert math.isfinite(coef[0])
+
+
+def test_rydberg_constants_are_astropys() -> None:
+    # the recombination series use CODATA 2022 constants written out (importing
+    # astropy.constants costs ~1 s per command); reference library: astropy.constants
+    import astropy.constants as const
+
+    from speccat.catalogue import recombination as rec
+
+    pairs = [
+        (rec.M_P_KG, const.m_p),
+        (rec.U_KG, const.u),
+        (rec.M_E_KG, const.m_e),
+        (rec.RYD_PER_M, const.Ryd),
+        (rec.C_M_S, const.c),
+    ]
+    for ours, reference in pairs:
+        assert ours == reference.si.value, reference.name
+    # and so the series: H109α from astropy's constants directly, same formula
+    r_h = const.Ryd.si.value * const.c.si.value / (1 + const.m_e.si.value / const.m_p.si.value)
+    assert builtin().by_name("H109a").rest_freq_hz == pytest.approx(
+        r_h * (1 / 109**2 - 1 / 110**2), rel=1e-15
+    )
