@@ -152,9 +152,9 @@ def start_workers(jobs: int) -> None:
 
 def shared_catalogue(settings: Settings, ctx: Any) -> Any:
     """The catalogue, loaded once here and pickled into shared memory for the workers
-    (``to_shared``). Building it imports astropy.constants (~0.35 s of CPU), which every worker
-    that unpickles it instead (0.5 MB, ~10 ms) is spared. None when the catalogue cannot be
-    loaded: each worker then loads its own, and its files fail with the reason.
+    (``to_shared``): each worker unpickles it (0.5 MB, ~10 ms) instead of building it (and,
+    with a ``--catalogue`` file, reading and checking that file). None when the catalogue
+    cannot be loaded: each worker then loads its own, and its files fail with the reason.
     """
     from speccat.catalogue import load
 
