@@ -54,7 +54,8 @@ def init_worker(
     pids: Any = None,
     catalogue: Any = None,
 ) -> None:
-    """Worker set-up; ``pids`` (a queue) learns the worker's process id (see ``_pool_pass``);
+    """Worker set-up; ``pids`` (a queue) learns the worker's process id (see
+    ``speccat.pipeline._close_broken``);
     ``known_velocities`` is a dict or the parent's in shared memory (``to_shared``);
     ``catalogue`` is the parent's in shared memory (``shared_catalogue``), or None to load it
     on first use."""
@@ -87,8 +88,8 @@ def worker_context() -> Any:
     The imports (numpy, scipy.optimize...) are then paid once per ingest, in the server, not
     ~1 s of CPU in each worker; and a later pool (one file at a time after a worker died, the
     next ingest in the same process) starts at once. The preload applies when the server
-    starts, i.e. at the first pool of the process; it is started here, so that its imports
-    run while this process loads the catalogue (``shared_catalogue``).
+    starts, i.e. at the first call in the process (``start_workers``, before the archive is
+    opened, so that its imports run alongside).
     """
     import multiprocessing as mp
     from multiprocessing import forkserver
@@ -113,7 +114,8 @@ def _worker_log() -> Any:
     if not _WORKER_LOG:
         import tempfile
 
-        _WORKER_LOG.append(tempfile.TemporaryFile(prefix="speccat-workers-"))  # noqa: SIM115 (open for the process's life)
+        log = tempfile.TemporaryFile(prefix="speccat-workers-")  # noqa: SIM115 (kept open)
+        _WORKER_LOG.append(log)
     return _WORKER_LOG[0]
 
 
