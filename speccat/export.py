@@ -20,9 +20,7 @@ import itertools
 import json
 import math
 import multiprocessing
-import operator
 import os
-import re
 import tempfile
 import threading
 import warnings
@@ -32,13 +30,14 @@ from concurrent.futures import Future, ProcessPoolExecutor
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import IO, Any
+from typing import IO, Any, TextIO
 from xml.sax.saxutils import escape, quoteattr
 
 from speccat import __version__
 from speccat.archive import EXPORT_COLUMNS, Archive, Filters
 from speccat.archive.engine import sqlite_path
 from speccat.archive.records import DESCRIPTIONS, INT_COLUMNS, RECORD_NAMES, STRING_COLUMNS, UNITS
+from speccat.celltext import csv_lines, ecsv_texts, row_cells, xml_texts
 from speccat.errors import ExportError
 
 FORMATS: dict[str, str] = {
@@ -151,59 +150,33 @@ def provenance(archive_url: str, filters: Filters) -> dict[str, Any]:
     }
 
 
-# ---- cell formatting -------------------------------------------------------------------------
-def text(value: Any) -> str:
-    """A cell as text: '' for unknown, repr for floats (exact round trip)."""
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        return repr(value)
-    return str(value)
-
-
-_XML_ILLEGAL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
-
-
-def _xml_text(value: Any) -> str:
-    """Cell text for XML: escaped, with characters XML 1.0 forbids replaced by U+FFFD."""
-    return escape(_XML_ILLEGAL.sub("\ufffd", text(value)))
-
-
-def _ecsv_cell(value: Any) -> str:
-    s = text(value)
-    if s == "" or any(ch in s for ch in ' "\t\n\r') or s.startswith("#"):
-        return '"' + s.replace('"', '""') + '"'
-    return s
-
-
 # ---- writers: ``rows`` are sequences aligned with ``columns`` ------------------------------
-_CHUNK = 5000  # rows formatted per call of the csv writer
+_CHUNK = 5000  # rows formatted together, a column at a time
+
+
+def _chunked(rows: Iterable[Sequence[Any]]) -> Iterator[list[Sequence[Any]]]:
+    it = iter(rows)
+    return iter(lambda: list(itertools.islice(it, _CHUNK)), [])
 
 
 def write_csv(
     out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
     _csv_header(out, columns)
-    return _csv_rows(out, rows, len(columns))
+    return _csv_chunks(out, _chunked(rows), columns)
 
 
 def _csv_header(out: IO[str], columns: Sequence[Column]) -> None:
     csv.writer(out, lineterminator="\n").writerow([c.name for c in columns])
 
 
-def _csv_rows(out: IO[str], rows: Iterable[Sequence[Any]], width: int) -> int:
-    it = iter(rows)
-    return _csv_chunks(out, iter(lambda: list(itertools.islice(it, _CHUNK)), []), width)
-
-
-def _csv_chunks(out: IO[str], chunks: Iterable[Sequence[Sequence[Any]]], width: int) -> int:
-    # the csv module writes None as an empty field and floats with repr (exact), all in C;
-    # rows go to it a chunk at a time (cut to the output columns by a C-level map if longer)
-    writer = csv.writer(out, lineterminator="\n")
-    cut = operator.itemgetter(slice(0, width))
+def _csv_chunks(
+    out: IO[str], chunks: Iterable[Sequence[Sequence[Any]]], columns: Sequence[Column]
+) -> int:
+    kinds = [c.kind for c in columns]
     n = 0
     for chunk in chunks:
-        writer.writerows(chunk if chunk and len(chunk[0]) == width else map(cut, chunk))
+        out.write(csv_lines(chunk, kinds))
         n += len(chunk)
     return n
 
@@ -247,12 +220,13 @@ def write_ecsv(
     meta: Mapping[str, Any],
 ) -> int:
     out.write(ecsv_header(columns, meta))
-    width = len(columns)
+    kinds = [c.kind for c in columns]
     n = 0
-    for values in rows:
-        out.write(" ".join(map(_ecsv_cell, values[:width])))
-        out.write("\n")
-        n += 1
+    for chunk in _chunked(rows):
+        for cells in row_cells(chunk, kinds, ecsv_texts, empty='""'):
+            out.write(" ".join(cells))
+            out.write("\n")
+        n += len(chunk)
     return n
 
 
@@ -294,12 +268,12 @@ def write_votable(
     meta: Mapping[str, Any],
 ) -> int:
     out.write(votable_header(columns, meta))
-    width = len(columns)
+    kinds = [c.kind for c in columns]
     n = 0
-    for values in rows:
-        cells = "</TD><TD>".join(map(_xml_text, values[:width]))
-        out.write(f"     <TR><TD>{cells}</TD></TR>\n")
-        n += 1
+    for chunk in _chunked(rows):
+        for cells in row_cells(chunk, kinds, xml_texts):
+            out.write(f"     <TR><TD>{'</TD><TD>'.join(cells)}</TD></TR>\n")
+        n += len(chunk)
     out.write(_VOTABLE_FOOTER)
     return n
 
@@ -316,7 +290,7 @@ WRITERS: dict[
 
 # ---- files -------------------------------------------------------------------------------------
 @contextlib.contextmanager
-def atomic_output(path: Path, force: bool) -> Iterator[IO[str]]:
+def atomic_output(path: Path, force: bool) -> Iterator[TextIO]:
     """A text stream to a temporary file beside ``path``, moved into place on success."""
     if path.exists() and not force:
         raise ExportError(f"{path} already exists; use --force to overwrite it")
@@ -395,7 +369,7 @@ def export(
         )
         with atomic_output(target, force) as out:
             _csv_header(out, columns)
-            return _csv_chunks(out, chunks, len(columns))
+            return _csv_chunks(out, chunks, columns)
     rows: Iterable[list[Any]] = archive.iter_values(
         filters, sort=sort, descending=descending, batch=batch
     )
@@ -445,20 +419,21 @@ def _pieces(
 
 
 def _csv_piece(
-    target: str, filters: Filters, id_range: tuple[int, int], width: int
-) -> tuple[int, str]:
-    """Worker: (rows, CSV text) of the matching rows with ids in ``id_range``."""
+    target: str, filters: Filters, id_range: tuple[int, int], columns: Sequence[Column]
+) -> tuple[int, bytes]:
+    """Worker: (rows, UTF-8 CSV lines) of the matching rows with ids in ``id_range``; bytes,
+    which cross the pipe and reach the file without being decoded and encoded again."""
     archive = _WORKER_ARCHIVES.get(target)
     if archive is None:
         archive = _WORKER_ARCHIVES[target] = Archive.open(target, readonly=True)
     buf = io.StringIO()
     chunks = archive.iter_value_chunks(filters, id_range=id_range, exported_only=True)
-    n = _csv_chunks(buf, chunks, width)
-    return n, buf.getvalue()
+    n = _csv_chunks(buf, chunks, columns)
+    return n, buf.getvalue().encode("utf-8")
 
 
 def _write_csv_parallel(
-    out: IO[str],
+    out: TextIO,
     target: str,
     filters: Filters,
     columns: Sequence[Column],
@@ -466,22 +441,22 @@ def _write_csv_parallel(
     workers: int,
 ) -> int:
     _csv_header(out, columns)
-    width = len(columns)
+    out.flush()  # the pieces go to the byte stream beneath
     context = multiprocessing.get_context("fork")
     n = 0
     with ProcessPoolExecutor(workers, mp_context=context) as pool:
         todo = iter(ranges)
-        pending: deque[Future[tuple[int, str]]] = deque(
-            pool.submit(_csv_piece, target, filters, r, width)
+        pending: deque[Future[tuple[int, bytes]]] = deque(
+            pool.submit(_csv_piece, target, filters, r, columns)
             for r in itertools.islice(todo, 2 * workers)
         )
         try:
             while pending:
-                rows, text = pending.popleft().result()
-                out.write(text)
+                rows, data = pending.popleft().result()
+                out.buffer.write(data)
                 n += rows
                 for r in itertools.islice(todo, 1):
-                    pending.append(pool.submit(_csv_piece, target, filters, r, width))
+                    pending.append(pool.submit(_csv_piece, target, filters, r, columns))
         except BaseException:
             pool.shutdown(wait=True, cancel_futures=True)
             raise
