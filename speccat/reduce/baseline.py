@@ -11,6 +11,7 @@ line-free residual; its normalised power is exponentially distributed for white 
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -57,6 +58,12 @@ def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.n
     starts, ends = runs(mask)
     if starts.size == 0:
         return mask.copy()
+    if starts.size <= FEW_INTERVALS:  # the common case: a slice each, in integers
+        out = np.zeros(mask.size, dtype=bool)
+        for a, b in zip(starts.tolist(), ends.tolist(), strict=True):
+            grow = max(math.ceil((b - a) * factor), minimum)
+            out[max(a - grow, 0) : b + grow] = True
+        return out
     grow = np.maximum(np.ceil((ends - starts) * factor), minimum).astype(np.int64)
     return intervals_mask(mask.size, starts - grow, ends + grow)
 
@@ -68,13 +75,16 @@ FEW_INTERVALS = 64
 def intervals_mask(n: int, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     """Boolean mask of the union of channel intervals [lo, hi) (clipped to the band; an
     interval with hi <= lo is empty)."""
-    lo = np.minimum(np.maximum(np.asarray(lo, dtype=np.int64), 0), n)
-    hi = np.minimum(np.maximum(np.asarray(hi, dtype=np.int64), lo), n)
+    lo = np.asarray(lo, dtype=np.int64)
+    hi = np.asarray(hi, dtype=np.int64)
     if lo.size <= FEW_INTERVALS:  # the common case: a slice each beats whole-band passes
         out = np.zeros(n, dtype=bool)
         for a, b in zip(lo.tolist(), hi.tolist(), strict=True):
-            out[a:b] = True
+            if b > a and b > 0:
+                out[max(a, 0) : b] = True
         return out
+    lo = np.minimum(np.maximum(lo, 0), n)
+    hi = np.minimum(np.maximum(hi, lo), n)
     acc = np.bincount(lo, minlength=n + 1) - np.bincount(hi, minlength=n + 1)
     return np.asarray(np.cumsum(acc[:n]) > 0)
 
@@ -161,17 +171,24 @@ def fit_linear(
         if info != 0:
             raise np.linalg.LinAlgError("baseline normal matrix is not positive definite")
     w = dtrtrs(chol, rhs, lower=1)[0]
-    rss_all = yy - np.cumsum(w**2)
-    n_cols = np.arange(1, design.shape[1] + 1)
+    # RSS and BIC per number of columns, in floats (a handful of values)
+    explained, rss_all = 0.0, []
+    for wj in w.tolist():
+        explained += wj * wj
+        rss_all.append(yy - explained)
+    log_m = math.log(m)
     if fixed_order is None:
         first = n_rip  # the ripple columns are always in
-        rss = np.maximum(rss_all[first:], 1e-300)
-        bic = m * np.log(rss / m) + (n_cols[first:] + (1 if period > 0 else 0)) * np.log(m)
-        k = first + int(np.argmin(bic))
-        best_bic = float(bic[k - first])
+        extra = 1 if period > 0 else 0
+        bic = [
+            m * math.log(max(rss_all[j], 1e-300) / m) + (j + 1 + extra) * log_m
+            for j in range(first, len(rss_all))
+        ]
+        best_bic = min(bic)
+        k = first + bic.index(best_bic)
     else:
         k = design.shape[1] - 1
-        best_bic = float(m * np.log(max(rss_all[k], 1e-300) / m) + (k + 1) * np.log(m))
+        best_bic = float(m * math.log(max(rss_all[k], 1e-300) / m) + (k + 1) * log_m)
     beta = dtrtrs(chol[: k + 1, : k + 1], w[: k + 1], lower=1, trans=1)[0]
     leg = beta[n_rip:]
     poly = design[:, n_rip : k + 1] @ leg
@@ -208,12 +225,16 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     if inner.size == 0:
         return 0.0
     spec = np.fft.rfft(r, nfft)
-    power = (spec.real**2 + spec.imag**2) / (m * sigma**2)
-    level = np.log(max(float(inner.size), 1.0) / false_alarm)
-    at = power[inner]
-    peaks = inner[(at >= level) & (at >= power[inner - 1]) & (at >= power[inner + 1])]
-    for best in peaks[np.argsort(-power[peaks])][:4]:  # strongest first; a few candidates
-        lo, mid, hi = np.log(power[best - 1 : best + 2] + 1e-300)
+    # power only over the searched indices and their two outer neighbours (a contiguous run)
+    first = int(inner[0]) - 1
+    part = spec[first : int(inner[-1]) + 2]
+    power = (part.real**2 + part.imag**2) / (m * sigma**2)
+    level = math.log(max(float(inner.size), 1.0) / false_alarm)
+    at = power[1:-1]
+    peaks = np.flatnonzero((at >= level) & (at >= power[:-2]) & (at >= power[2:])) + 1
+    for at_peak in peaks[np.argsort(-power[peaks])][:4]:  # strongest first; a few candidates
+        best = first + int(at_peak)
+        lo, mid, hi = np.log(power[at_peak - 1 : at_peak + 2] + 1e-300)
         denom = lo - 2 * mid + hi
         shift = 0.5 * (lo - hi) / denom if denom < 0 else 0.0
         period = float(nfft / (best + np.minimum(np.maximum(shift, -0.5), 0.5)))
@@ -229,7 +250,7 @@ def _ripple_grid(n: int) -> tuple[int, np.ndarray]:
     nfft = scipy.fft.next_fast_len(n, real=True)
     freqs = np.arange(nfft // 2 + 1) / nfft
     idx = np.flatnonzero((freqs >= 3.0 / n) & (freqs <= 0.25))
-    inner = idx[(idx > 0) & (idx < freqs.size - 1)]
+    inner = idx[(idx > 0) & (idx < freqs.size - 1)]  # contiguous (``find_ripple`` slices)
     inner.flags.writeable = False
     return nfft, inner
 
@@ -312,9 +333,11 @@ def fit_baseline(
     """
     free = valid & ~line_mask
     good = free.copy() if start is None else start[0] & free
-    y = np.where(valid, y, 0.0)
+    n_valid = int(np.count_nonzero(valid))
+    if n_valid < y.size:
+        y = np.where(valid, y, 0.0)
     sums = legendre_sums(y, max(max_order, fixed_order or 0, 1))
-    if good.sum() < 8:
+    if np.count_nonzero(good) < 8:
         good = valid.copy()
     period = 0.0 if start is None or not ripple else start[1]
     # a cold start clips against a straight line first: a high-order polynomial fitted to
@@ -322,16 +345,17 @@ def fit_baseline(
     first = fixed_order if fixed_order is not None or start is not None else min(max_order, 1)
     fit, _ = fit_linear(y, good, max_order, first, period, sums)
     tolerance = max(2, int(0.002 * y.size))
+    least = max(8, 0.2 * n_valid)
     changed_before = True
     for it in range(max_iter):
         resid = y - fit.total
-        sigma = robust_rms(resid[good])
+        sigma = robust_rms(resid[good], finite=True)
         clipped = valid & (np.abs(resid) > clip_sigma * sigma)
         new_good = free & ~dilate_runs(clipped)
-        if new_good.sum() < max(8, 0.2 * valid.sum()):  # dilation took too much: undilated
+        if np.count_nonzero(new_good) < least:  # dilation took too much: undilated
             new_good = free & ~clipped
-        if new_good.sum() < max(8, 0.2 * valid.sum()):
-            new_good = good
+            if np.count_nonzero(new_good) < least:
+                new_good = good
         new_period = period
         search = it == 0 or (it == 1 and start is None and (period > 0 or changed_before))
         if ripple and search:

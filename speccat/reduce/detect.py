@@ -187,14 +187,17 @@ def shift_bank(
     corr = correlation_factor(rho, sigmas)
     amp, cen = rows[:, 0] * sign, rows[:, 1]
     z = bank.z.copy()
-    for c in range(rows.shape[0] if plan.taps else 0):  # narrow: exact convolutions
+    # narrow: exact convolutions with each kernel scaled to S/N units
+    taps = [
+        (int(bank.starts[j]), k.size // 2, k / (rms * np.sqrt(norm2 * corr[j])))
+        for j, k, norm2 in plan.taps
+    ]
+    for c in range(rows.shape[0] if taps else 0):
         a, b = int(lo[c]), int(hi[c])
         seg = amp[c] * np.exp(-0.5 * ((np.arange(a, b) - cen[c]) / sig[c]) ** 2)
-        for j, k, norm2 in plan.taps:
-            half = k.size // 2
+        for at, half, kernel in taps:
             first, stop = max(a - half, 0), min(b + half, n)
-            part = np.convolve(seg, k / (rms * np.sqrt(norm2 * corr[j])))
-            at = int(bank.starts[j])
+            part = np.convolve(seg, kernel)
             z[at + first : at + stop] += part[first - a + half : stop - a + half]
     j_b, d_b, norm_b = _broad(n, key)
     if j_b.size:  # every (component, broad kernel) pair at once, analytic

@@ -251,6 +251,8 @@ def fit_components(
     covariance is then evaluated in the plain parameters [A, c, ...] at the solution.
     """
     k, npar = p0.shape
+    if profile == "gaussian" and k == 1 and x.size:
+        return _fit_one_gaussian(x, y, p0[0].tolist(), maxfev)
     x0 = 0.5 * float(x[0] + x[-1]) if x.size else 0.0
     start = p0.copy()
     start[:, 1] -= x0
@@ -286,6 +288,38 @@ def fit_components(
     params[:, 1] += x0
     ok = bool(ier in (1, 2, 3, 4) and np.isfinite(params).all() and np.isfinite(cov).all())
     return GroupFit(params, cov, rss, dof, profile, ok)
+
+
+def _fit_one_gaussian(x: np.ndarray, y: np.ndarray, p0: list[float], maxfev: int) -> GroupFit:
+    """``fit_components`` for one Gaussian, the common case, in floats where it can be: the
+    same start, solver, covariance and result."""
+    amp0, cen0, ln_s0 = p0
+    x0 = 0.5 * float(x[0] + x[-1])
+    sign = 1.0 if amp0 >= 0.0 else -1.0
+    tiny = 1e-12 * max(float(np.max(np.abs(y))), 1e-300)
+    start = np.array([math.log(max(abs(amp0), tiny)), cen0 - x0, ln_s0])
+    calls = [0]
+    one = _OneGaussian(x - x0, y, sign, calls)
+    with np.errstate(all="ignore"):  # a run-away fit overflows; ier and _inverse say so
+        sol_log, ier = _lmder(one.resid, one.jac, start, _budget(maxfev, x.size, 3, "gaussian"))
+        r = one.resid(sol_log)
+        ln_a, cen, ln_s = sol_log.tolist()
+        amp = sign * math.exp(min(ln_a, 700.0))
+        jm = one.jac(sol_log)  # a new array
+        jm[0] /= amp if amp != 0 else 1.0  # d/dA = (d/d ln|A|) / A
+        rss = float(np.dot(r, r))
+        dof = max(x.size - 3, 1)
+        cov = _inverse(jm @ jm.T) * (rss / dof)
+    work = WORK.get()
+    if work is not None:
+        work[0] += calls[0] * (x.size * 3.0 + 5000.0)
+    params = np.array([[amp, cen + x0, ln_s]])
+    ok = bool(
+        ier in (1, 2, 3, 4)
+        and all(math.isfinite(v) for v in (amp, cen + x0, ln_s))
+        and np.isfinite(cov).all()
+    )
+    return GroupFit(params, cov, rss, dof, "gaussian", ok)
 
 
 def _lmder(

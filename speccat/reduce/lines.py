@@ -11,7 +11,7 @@ from speccat.model import Kind, LineFit
 from speccat.reduce.engine import Group, Noise
 from speccat.reduce.fit import Component, components, model
 from speccat.reduce.noise import correlation_factor
-from speccat.reduce.profile import box_correlation_factor, direct_sum, moments, peak_fraction_width
+from speccat.reduce.profile import box_correlation_factor, moments, peak_fraction_widths
 from speccat.reduce.settings import ReduceSettings
 from speccat.reduce.wide import clusters, is_wide, merge, wide_component
 
@@ -119,21 +119,20 @@ def _group_lines(
     out: list[LineFit] = []
     chi2 = group.fit.rss / group.fit.dof / noise.rms**2
     poor = (not group.fit.success) or chi2 > max(
-        s.poor_fit_chi2, 1.0 + 5.0 * np.sqrt(2.0 / group.fit.dof)
+        s.poor_fit_chi2, 1.0 + 5.0 * math.sqrt(2.0 / group.fit.dof)
     )
     dominant = max(comps, key=lambda c: abs(c.peak))
     sign = 1.0 if dominant.peak >= 0 else -1.0
-    x = np.arange(group.lo, group.hi, dtype=float)
-    others = total[group.lo : group.hi] - model(x, group.params, profile)
-    prof = sign * (data[group.lo : group.hi] - others)
-    top = float(np.nanmax(prof)) if np.isfinite(prof).any() else 0.0
-    widths = [
-        peak_fraction_width(prof, frac) if frac * top >= WIDTH_LEVEL_SIGMA * noise.rms else None
-        for frac in (0.5, 0.2)
-    ]
+    glo, ghi = group.lo, group.hi
+    own_group = model(np.arange(glo, ghi, dtype=float), group.params, profile)
+    prof = sign * (data[glo:ghi] - (total[glo:ghi] - own_group))
+    widths = peak_fraction_widths(prof, (0.5, 0.2), WIDTH_LEVEL_SIGMA * noise.rms)
     for i, comp in enumerate(comps):
         lo, hi = _window(comp, n, s.sum_window_fwhm)
-        own = model(np.arange(lo, hi, dtype=float), group.params[i : i + 1], profile)
+        if len(comps) == 1 and glo <= lo and hi <= ghi:  # the group's own model, sliced
+            own = own_group[lo - glo : hi - glo]
+        else:
+            own = model(np.arange(lo, hi, dtype=float), group.params[i : i + 1], profile)
         isolated = data[lo:hi] - (total[lo:hi] - own)
         if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
             comp = _unresolved(comp, isolated, lo, noise)
@@ -273,14 +272,23 @@ def _linefit(
     # fit is statistically worse than the noise (chi^2_red > 1 + 3 sqrt(2/dof)), else by the
     # far better determined line-free rms^2 (Particle Data Group scale-factor convention);
     # then times the correlated-noise factor for weights of the line's width
-    consistent = chi2 <= 1.0 + 3.0 * np.sqrt(2.0 / dof)
-    floor = 1.0 / np.sqrt(chi2) if consistent and chi2 > 0 else 1.0
-    inflate = float(floor * np.sqrt(correlation_factor(noise.rho, comp.sigma)[0]))
+    consistent = chi2 <= 1.0 + 3.0 * math.sqrt(2.0 / dof)
+    floor = 1.0 / math.sqrt(chi2) if consistent and chi2 > 0 else 1.0
+    correlated = bool(noise.rho.any())
+    cf = float(correlation_factor(noise.rho, comp.sigma)[0]) if correlated else 1.0
+    inflate = floor * math.sqrt(cf)
     lo, hi = span
+    weight = dfdc[lo:hi]
     ok = np.isfinite(seg)
-    total = direct_sum(seg, dfdc[lo:hi])
-    box = box_correlation_factor(noise.rho, int(ok.sum()))
-    total_err = noise.rms * float(np.sqrt(np.sum(dfdc[lo:hi][ok] ** 2) * box))
+    if ok.all():
+        total = float(np.sum(seg * weight))
+        count = seg.size
+    else:
+        weight = weight[ok]
+        total = float(np.sum(seg[ok] * weight))
+        count = int(np.count_nonzero(ok))
+    box = box_correlation_factor(noise.rho, count) if correlated else 1.0
+    total_err = noise.rms * math.sqrt(float(np.sum(weight**2)) * box)
     sign = 1.0 if comp.peak >= 0 else -1.0
     m1, m2 = moments(freq[lo:hi], sign * seg)
     lorentz = comp.lorentz_fwhm

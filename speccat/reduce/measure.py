@@ -49,14 +49,18 @@ def saturated(y: np.ndarray, valid: np.ndarray, min_run: int = 3) -> np.ndarray:
     coarsely quantised rather than clipped, and nothing is marked.
     """
     out = np.zeros(y.size, dtype=bool)
-    if not valid.any():
+    n_valid = int(np.count_nonzero(valid))
+    if n_valid == 0:
         return out
-    for level in (np.max(y[valid]), np.min(y[valid])):
-        at = valid & (y == level)
+    values = y if n_valid == y.size else y[valid]
+    for level in (np.max(values), np.min(values)):
+        at = y == level
+        if n_valid < y.size:
+            at &= valid
         if np.count_nonzero(at) < min_run:
             continue
         out |= long_runs(at, min_run)
-    if np.count_nonzero(out) > valid.sum() // 4:
+    if np.count_nonzero(out) > n_valid // 4:
         return np.zeros(y.size, dtype=bool)  # (nearly) constant data, not a saturated recorder
     return out
 
@@ -84,8 +88,9 @@ def _baseline(
     # features the clipping removed (runs of >= 4 clipped channels: lines not yet fitted) stay
     # out of the noise estimate; single clipped noise channels (a run of 3 after dilation) stay
     # in it, so that the noise tails are not truncated
-    quiet = valid & ~line_mask & ~long_runs(valid & ~line_mask & ~good, 4)
-    rms = robust_rms(resid[quiet] if quiet.sum() > 8 else resid[good])
+    free = valid & ~line_mask
+    quiet = free & ~long_runs(free & ~good, 4)
+    rms = robust_rms(resid[quiet] if np.count_nonzero(quiet) > 8 else resid[good], finite=True)
     floor = 1e-9 * max(float(np.max(np.abs(y[valid]))), 1e-300)
     rms = rms if np.isfinite(rms) and rms > floor else floor
     return base, good, Noise(rms, autocorrelation(resid, good)), resid

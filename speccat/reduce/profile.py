@@ -18,14 +18,28 @@ def peak_fraction_width(y: np.ndarray, frac: float) -> float | None:
     channels are ignored. The crossing is interpolated between the outermost channel above the
     level and its outer neighbour; at the window edge the edge channel itself is used.
     """
+    return peak_fraction_widths(y, (frac,))[0]
+
+
+def peak_fraction_widths(
+    y: np.ndarray, fracs: tuple[float, ...], min_level: float = -np.inf
+) -> list[float | None]:
+    """``peak_fraction_width`` for several fractions, sharing one pass for the peak; None for
+    a fraction whose level (fraction x peak) is below ``min_level``."""
     finite = np.isfinite(y)
-    if finite.sum() < 3:
-        return None
-    v = np.where(finite, y, -np.inf)
+    every = bool(finite.all())
+    if not every and np.count_nonzero(finite) < 3:
+        return [None] * len(fracs)
+    if y.size < 3:
+        return [None] * len(fracs)
+    v = y if every else np.where(finite, y, -np.inf)
     peak = float(v.max())
     if peak <= 0:
-        return None
-    level = frac * peak
+        return [None] * len(fracs)
+    return [_crossings(y, v, frac * peak) if frac * peak >= min_level else None for frac in fracs]
+
+
+def _crossings(y: np.ndarray, v: np.ndarray, level: float) -> float:
     above = np.flatnonzero(v >= level)
     lo, hi = int(above[0]), int(above[-1])
     left = float(lo)
@@ -40,6 +54,8 @@ def peak_fraction_width(y: np.ndarray, frac: float) -> float | None:
 def direct_sum(y: np.ndarray, weight: np.ndarray) -> float:
     """sum(y * weight) over finite channels (weight = channel width, e.g. Hz)."""
     ok = np.isfinite(y)
+    if ok.all():
+        return float(np.sum(y * weight))
     return float(np.sum(y[ok] * weight[ok]))
 
 
@@ -54,11 +70,13 @@ def box_correlation_factor(rho: np.ndarray, n: int) -> float:
 def moments(freq: np.ndarray, y: np.ndarray) -> tuple[float | None, float | None]:
     """Intensity-weighted mean frequency and dispersion; None when the weight sum is not > 0."""
     ok = np.isfinite(y)
-    w = y[ok]
+    if ok.all():
+        w, f = y, freq
+    else:
+        w, f = y[ok], freq[ok]
     total = float(w.sum())
     if total <= 0:
         return None, None
-    f = freq[ok]
     mean = float(np.sum(w * f) / total)
     var = float(np.sum(w * (f - mean) ** 2) / total)
     return mean, (float(np.sqrt(var)) if var > 0 else None)
