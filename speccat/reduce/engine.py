@@ -311,7 +311,7 @@ def detect_and_fit(
     if params.shape[0]:
         groups = fit_groups(resid, valid, params, noise, settings, profile)
         params = stack(groups, params.shape[1])
-    base = np.where(valid, resid, 0.0)
+    base = resid if valid.all() else np.where(valid, resid, 0.0)  # read only
     bank: Bank | None = None
     used = params
     for _ in range(settings.max_rounds):

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
@@ -35,8 +36,16 @@ def assemble(
     groups = sorted(groups, key=lambda g: float(np.min(g.params[:, 1])))
     everything = np.concatenate([g.params for g in groups]) if groups else np.zeros((0, 3))
     profile = s.profile
-    data = np.where(valid, resid, np.nan)
-    total = full_model(resid.size, everything, profile)
+    data = resid if valid.all() else np.where(valid, resid, np.nan)  # read only
+    n = resid.size
+    cache: list[np.ndarray] = []
+
+    def total() -> np.ndarray:  # the full model, built when first needed
+        if not cache:
+            cache.append(full_model(n, everything, profile))
+        return cache[0]
+
+    alone = _alone(groups, everything, n, profile)
     out: list[LineFit] = []
     index = 0
     for cluster in clusters(groups):
@@ -47,7 +56,7 @@ def assemble(
             chi2 = merged.fit.rss / merged.fit.dof / noise.rms**2
             masks = (valid, clip)
             wide = _wide_linefit(
-                freq, dfdc, data, total, merged, comps, masks, noise, s, chi2, index
+                freq, dfdc, data, total(), merged, comps, masks, noise, s, chi2, index
             )
             if wide is not None:
                 out.append(wide)
@@ -56,7 +65,16 @@ def assemble(
         for group, group_comps in zip(cluster, per_group, strict=True):
             out.extend(
                 _group_lines(
-                    freq, dfdc, data, total, group, group_comps, (valid, clip), noise, s, index
+                    freq,
+                    dfdc,
+                    data,
+                    (total, alone[id(group)]),
+                    group,
+                    group_comps,
+                    (valid, clip),
+                    noise,
+                    s,
+                    index,
                 )
             )
             index += 1
@@ -99,11 +117,37 @@ def full_model(n: int, params: np.ndarray, profile: str) -> np.ndarray:
     return out
 
 
+def _alone(groups: list[Group], everything: np.ndarray, n: int, profile: str) -> dict[int, bool]:
+    """Per group (by id): a single component that no other component reaches within the
+    group's window, as ``full_model`` evaluates them (Gaussians within +/- 12 sigma, Voigt
+    wings everywhere). The full model minus its own model is then exactly zero there."""
+    out: dict[int, bool] = {}
+    if profile == "gaussian" and everything.shape[0]:
+        sig = np.exp(np.minimum(np.maximum(everything[:, 2], -12.0), 30.0))
+        los = np.clip(np.floor(everything[:, 1] - 12.0 * sig), 0, n).astype(int).tolist()
+        his = np.clip(np.ceil(everything[:, 1] + 12.0 * sig) + 1, 0, n).astype(int).tolist()
+    row = 0
+    for g in groups:
+        k = g.params.shape[0]
+        if k != 1:
+            out[id(g)] = False
+        elif profile == "gaussian":
+            out[id(g)] = not any(
+                his[i] > los[i] and los[i] < g.hi and his[i] > g.lo
+                for i in range(len(los))
+                if i != row
+            )
+        else:
+            out[id(g)] = everything.shape[0] == 1
+        row += k
+    return out
+
+
 def _group_lines(
     freq: np.ndarray,
     dfdc: np.ndarray,
     data: np.ndarray,
-    total: np.ndarray,
+    full: tuple[Callable[[], np.ndarray], bool],
     group: Group,
     comps: list[Component],
     masks: tuple[np.ndarray, np.ndarray],
@@ -112,7 +156,9 @@ def _group_lines(
     index: int,
 ) -> list[LineFit]:
     """One ``LineFit`` per component of an ordinary blend group (Gaussian/Voigt values);
-    ``comps`` are the group's ``components``."""
+    ``comps`` are the group's ``components``; ``full`` is (the full model's getter, whether
+    the group is a lone component that nothing else reaches, ``_alone``: the data over its
+    window are then its own profile, and the full model is not needed)."""
     n = data.size
     profile = s.profile
     valid, clip = masks
@@ -124,16 +170,24 @@ def _group_lines(
     dominant = max(comps, key=lambda c: abs(c.peak))
     sign = 1.0 if dominant.peak >= 0 else -1.0
     glo, ghi = group.lo, group.hi
-    own_group = model(np.arange(glo, ghi, dtype=float), group.params, profile)
-    prof = sign * (data[glo:ghi] - (total[glo:ghi] - own_group))
+    total_of, alone = full
+    if alone:
+        prof = sign * data[glo:ghi]
+    else:
+        own_group = model(np.arange(glo, ghi, dtype=float), group.params, profile)
+        prof = sign * (data[glo:ghi] - (total_of()[glo:ghi] - own_group))
     widths = peak_fraction_widths(prof, (0.5, 0.2), WIDTH_LEVEL_SIGMA * noise.rms)
     for i, comp in enumerate(comps):
         lo, hi = _window(comp, n, s.sum_window_fwhm)
-        if len(comps) == 1 and glo <= lo and hi <= ghi:  # the group's own model, sliced
-            own = own_group[lo - glo : hi - glo]
+        inside = glo <= lo and hi <= ghi
+        if alone and inside:  # nothing else reaches: the data are the line's own
+            isolated = data[lo:hi]
         else:
-            own = model(np.arange(lo, hi, dtype=float), group.params[i : i + 1], profile)
-        isolated = data[lo:hi] - (total[lo:hi] - own)
+            if len(comps) == 1 and inside:  # the group's own model, sliced
+                own = own_group[lo - glo : hi - glo]
+            else:
+                own = model(np.arange(lo, hi, dtype=float), group.params[i : i + 1], profile)
+            isolated = data[lo:hi] - (total_of()[lo:hi] - own)
         if comp.sigma < UNRESOLVED_SIGMA and profile == "gaussian":
             comp = _unresolved(comp, isolated, lo, noise)
         flags = _flags(comp, poor, len(comps), n, valid, clip, noise, s)

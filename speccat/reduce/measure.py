@@ -135,7 +135,7 @@ def measure(
 def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) -> Measurement:
     n = y.size
     finite = np.isfinite(y)
-    yv = np.where(finite, y, 0.0)
+    yv = y if finite.all() else np.where(finite, y, 0.0)  # read only from here on
     clip = saturated(yv, finite)
     valid = finite & ~dilate_runs(clip) if clip.any() else finite
     flags = []

@@ -68,7 +68,8 @@ def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG)
     A value is kept only when it exceeds 3/sqrt(pairs) in size, so white noise gives exactly
     zero and its errors are not inflated by chance correlation.
     """
-    r = np.where(good, resid, 0.0)
+    r = resid.copy()
+    np.copyto(r, 0.0, where=~good)
     w = good.astype(float)
     var = float(np.dot(r, r))
     npts = float(np.count_nonzero(good))
