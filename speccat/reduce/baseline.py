@@ -37,13 +37,10 @@ class BaselineFit:
 
 def runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Start and end (exclusive) channels of every run of True in ``mask``."""
-    idx = np.flatnonzero(mask)
-    if idx.size == 0:
-        return idx, idx
-    brk = np.flatnonzero(np.diff(idx) > 1)
-    starts = idx[np.concatenate(([0], brk + 1))]
-    ends = idx[np.concatenate((brk, [idx.size - 1]))] + 1
-    return starts, ends
+    padded = np.zeros(mask.size + 2, dtype=bool)
+    padded[1:-1] = mask
+    edges = np.flatnonzero(padded[1:] != padded[:-1])  # alternately a start and an end
+    return edges[::2], edges[1::2]
 
 
 def long_runs(mask: np.ndarray, min_len: int) -> np.ndarray:
@@ -225,7 +222,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     nfft, inner = _ripple_grid(n)
     if inner.size == 0:
         return 0.0
-    spec = np.fft.rfft(r, nfft)
+    spec = scipy.fft.rfft(r, nfft)  # (SciPy keeps its plans: no twiddle factors per call)
     # power only over the searched indices and their two outer neighbours (a contiguous run)
     first = int(inner[0]) - 1
     part = spec[first : int(inner[-1]) + 2]

@@ -140,7 +140,7 @@ def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarr
         for row, (j, _, _) in enumerate(plan.taps):
             z[starts[j] : starts[j] + n] = narrow[row]
     if plan.parts:
-        spec = np.fft.rfft(resid, plan.nfft)
+        spec = scipy.fft.rfft(resid, plan.nfft)  # (SciPy keeps its plans)
         for d, idx, trans, norms in plan.parts:
             m = plan.nfft // d
             filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)
@@ -178,6 +178,7 @@ def shift_bank(
     valid: np.ndarray,
     remove: np.ndarray,
     restore: np.ndarray,
+    in_place: bool = False,
 ) -> Bank | None:
     """The bank of (r - model(remove) + model(restore)) from the bank of r, for Gaussian rows
     [A, c, ln s]: filtering is linear, so each component's own response is subtracted (or
@@ -189,7 +190,8 @@ def shift_bank(
     the sampled profile to exp(-2 pi^2 s^2 w^2 / (s^2 + w^2)) < 1e-7 when s >= 1 channel (the
     Poisson summation formula). Returns None, and the caller filters afresh, when a component
     is narrower than ``SHIFT_MIN_SIGMA``, not within the band to +/- 8 sigma or touches an
-    invalid channel there, since then the sampled model is not that Gaussian.
+    invalid channel there, since then the sampled model is not that Gaussian. ``in_place``
+    moves ``bank`` itself (its array is changed) instead of a copy.
     """
     n = valid.size
     key = tuple(float(s) for s in sigmas)
@@ -207,7 +209,7 @@ def shift_bank(
         return None
     corr = correlation_factor(rho, sigmas)
     amp, cen = rows[:, 0] * sign, rows[:, 1]
-    z = bank.z.copy()
+    z = bank.z if in_place else bank.z.copy()
     # narrow: exact convolutions with each kernel scaled to S/N units
     taps = [
         (int(bank.starts[j]), k.size // 2, k / (rms * np.sqrt(norm2 * corr[j])))

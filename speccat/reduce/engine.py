@@ -318,7 +318,9 @@ def detect_and_fit(
         if over_budget():
             break
         if bank is not None and profile == "gaussian":  # the last bank, its model moved
-            bank = shift_bank(bank, sigmas, noise.rms, noise.rho, valid, params, used)
+            bank = shift_bank(
+                bank, sigmas, noise.rms, noise.rho, valid, params, used, in_place=True
+            )
         else:
             bank = None
         if bank is None:

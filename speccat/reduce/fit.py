@@ -205,12 +205,13 @@ def _log_funcs(
 class _OneGaussian:
     """Residual and column Jacobian of one Gaussian in [ln |A|, c, ln s] (sign fixed): the
     hot path of the reduction, a handful of numpy calls per evaluation. The last evaluation
-    is kept, so the Jacobian at a point just evaluated (and a repeated point) costs no exp."""
+    is kept, so the Jacobian at a point just evaluated (and a repeated point) costs no exp.
+    The arrays are filled in place (MINPACK copies what it is handed)."""
 
     def __init__(self, xs: np.ndarray, y: np.ndarray, sign: float, calls: list[int]) -> None:
         self.xs, self.y, self.sign, self.calls = xs, y, sign, calls
         self.key: tuple[float, ...] = ()
-        self.f = self.t = self.r = np.empty(0)
+        self.f, self.t, self.r = np.empty(xs.size), np.empty(xs.size), np.empty(xs.size)
         self.s1 = 1.0
 
     def _at(self, flat: np.ndarray) -> None:
@@ -219,10 +220,14 @@ class _OneGaussian:
             return
         a, cen, u = key
         self.s1 = math.exp(min(max(u, -12.0), 30.0))
-        self.t = (self.xs - cen) * (1.0 / self.s1)
-        self.f = np.exp(-0.5 * self.t * self.t)
-        self.f *= self.sign * math.exp(min(a, 700.0))
-        self.r = self.f - self.y
+        t, f = self.t, self.f
+        np.subtract(self.xs, cen, out=t)
+        t *= 1.0 / self.s1
+        np.multiply(t, t, out=f)
+        f *= -0.5  # (exact: a power of two)
+        np.exp(f, out=f)
+        f *= self.sign * math.exp(min(a, 700.0))
+        np.subtract(f, self.y, out=self.r)
         self.key = key
         self.calls[0] += 1
 
