@@ -131,7 +131,8 @@ def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarr
     key = tuple(float(s) for s in sigmas)
     plan = _plan(n, key)
     starts, sizes, decim = _layout(n, key)
-    z = np.zeros(int(starts[-1] + sizes[-1] + 1))
+    z = np.empty(int(starts[-1] + sizes[-1] + 1))
+    z[starts + sizes] = 0.0  # the separators; every scale is written below
     corr = correlation_factor(rho, sigmas)
     if plan.taps:
         noise = np.array([rms * np.sqrt(norm2 * corr[j]) for j, _, norm2 in plan.taps])
