@@ -1,7 +1,8 @@
 """Line finding by matched filtering with a ladder of Gaussian kernels.
 
-Each kernel is applied in the Fourier domain through its analytic transfer function
-exp(-2 pi^2 s^2 f^2) (s = kernel sigma in channels, f in cycles per channel); broad kernels are
+The narrowest kernels (those not decimated) are sampled Gaussians applied in channel space
+(``_pair_sums``). The others are applied in the Fourier domain through their analytic transfer
+function exp(-2 pi^2 s^2 f^2) (s = kernel sigma in channels, f in cycles per channel) and
 evaluated on a decimated grid, which costs nothing in accuracy because their transfer function
 is below 1e-5 beyond the decimated Nyquist frequency. The noise of each filtered spectrum is
 rms x |k| x sqrt(correlation factor), where |k|^2 = sum_f |H(f)|^2 / N (Parseval), so the
