@@ -23,7 +23,7 @@ from datetime import datetime
 from functools import cache
 from typing import Any
 
-from sqlalchemy import ColumnElement, Select, String, and_, case, func, or_, select
+from sqlalchemy import ColumnElement, Select, String, and_, func, or_, select
 from sqlalchemy.engine import Engine
 
 from speccat.archive.blobs import decode_data, decode_freq
