@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import json
 import math
 import sys
@@ -45,10 +44,13 @@ def write_records(
         json.dump(data, sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
     elif fmt == "csv":
-        writer = csv.writer(sys.stdout, lineterminator="\n")
-        writer.writerow(columns)
-        for r in records:
-            writer.writerow(["" if r.get(c) is None else r.get(c) for c in columns])
+        # the cells and quoting of `speccat export` (numbers in bulk where a column holds only
+        # numbers, text quoted where it needs it)
+        from speccat.celltext import csv_lines
+
+        sys.stdout.write(csv_lines([columns], ["str"] * len(columns)))
+        rows = [[r.get(c) for c in columns] for r in records]
+        sys.stdout.write(csv_lines(rows, ["float"] * len(columns)))
     else:
         table = Table(title=title)
         for c in columns:
