@@ -1,4 +1,5 @@
-"""Model-free line measures: peak-fraction widths, direct sums and moments (channel units).
+"""Model-free line measures: peak-fraction widths, moments and the correlation factor of a
+box sum (channel units).
 
 W50/W20: distance between the outermost channels at or above 50 %/20 % of the peak, each edge
 linearly interpolated to the crossing outside it (common practice for double-horned 21 cm
@@ -11,21 +12,17 @@ from __future__ import annotations
 import numpy as np
 
 
-def peak_fraction_width(y: np.ndarray, frac: float) -> float | None:
-    """Width (channels) between outermost crossings of ``frac`` x max(y); None when undefined.
+def peak_fraction_widths(
+    y: np.ndarray, fracs: tuple[float, ...], min_level: float = -np.inf
+) -> list[float | None]:
+    """Widths (channels) between the outermost crossings of each fraction x max(y), sharing
+    one pass for the peak; None when undefined or when the level (fraction x peak) is below
+    ``min_level``.
 
     ``y`` holds the profile with the line positive (absorption negated by the caller); NaN
     channels are ignored. The crossing is interpolated between the outermost channel above the
     level and its outer neighbour; at the window edge the edge channel itself is used.
     """
-    return peak_fraction_widths(y, (frac,))[0]
-
-
-def peak_fraction_widths(
-    y: np.ndarray, fracs: tuple[float, ...], min_level: float = -np.inf
-) -> list[float | None]:
-    """``peak_fraction_width`` for several fractions, sharing one pass for the peak; None for
-    a fraction whose level (fraction x peak) is below ``min_level``."""
     finite = np.isfinite(y)
     every = bool(finite.all())
     if not every and np.count_nonzero(finite) < 3:
@@ -49,14 +46,6 @@ def _crossings(y: np.ndarray, v: np.ndarray, level: float) -> float:
     if hi < y.size - 1 and np.isfinite(y[hi + 1]):
         right = hi + (v[hi] - level) / (v[hi] - y[hi + 1])
     return float(right - left)
-
-
-def direct_sum(y: np.ndarray, weight: np.ndarray) -> float:
-    """sum(y * weight) over finite channels (weight = channel width, e.g. Hz)."""
-    ok = np.isfinite(y)
-    if ok.all():
-        return float(np.sum(y * weight))
-    return float(np.sum(y[ok] * weight[ok]))
 
 
 def box_correlation_factor(rho: np.ndarray, n: int) -> float:
