@@ -8,7 +8,10 @@ written with plain astropy, then, in one run:
   line + sqlite3 inserts, on a subset, as files per second;
 - the single writer alone: one file measured by the pipeline's worker code, then stored again
   and again under new SHA-256s (``Archive.store_prepared``), as files per second and CPU per
-  file: the ceiling the writer puts on an ingest, whatever the workers' speed.
+  file: the ceiling the writer puts on an ingest, whatever the workers' speed;
+- a worker alone: the pipeline's worker code (read, measure, identify, build rows) in this
+  process on a subset, CPU per file; with the writer's CPU per file it gives the most an ingest
+  could reach if every core were busy all the time with nothing else.
 """
 
 from __future__ import annotations
@@ -144,6 +147,18 @@ def writer_only(path: Path, db: Path, n_files: int) -> tuple[float, float]:
     return n_files / wall, 1e3 * cpu / n_files
 
 
+def worker_only(paths: list[Path]) -> float:
+    """CPU ms per file of the worker code (``prepare_files``) run in this process, after a
+    warm-up on the first few files (imports, catalogue, FFT plans)."""
+    from speccat.workers import prepare_files
+
+    names = [str(p) for p in paths]
+    prepare_files(names[:5])
+    c0 = time.process_time()
+    prepare_files(names)
+    return 1e3 * (time.process_time() - c0) / len(names)
+
+
 def short_night() -> list[dict[str, Any]]:
     """A short night (30 files, like the sample night), best of 3: here start-up (imports,
     the catalogue, the worker processes) is most of what the user waits for."""
@@ -170,6 +185,9 @@ def run(quick: bool) -> list[dict[str, Any]]:
             writer_rate, writer_cpu_ms = writer_only(
                 paths[0], Path(tmp) / "writer.sqlite", 300 if quick else 2000
             )
+            worker_cpu_ms = worker_only(subset)
+            per_file = summary["spectra"] / max(summary["files_stored"], 1)
+            ceiling = (os.cpu_count() or 1) * 1e3 / (worker_cpu_ms + writer_cpu_ms) * per_file
             rows += [
                 {
                     "figure": f"ingest {n} x 8192-ch spectra: spectra/s (cores={os.cpu_count()})",
@@ -204,6 +222,16 @@ def run(quick: bool) -> list[dict[str, Any]]:
                     "figure": "ingest writer alone: CPU per file",
                     "value": writer_cpu_ms,
                     "unit": "ms",
+                },
+                {
+                    "figure": "ingest worker alone: CPU per file (read, measure, identify, rows)",
+                    "value": worker_cpu_ms,
+                    "unit": "ms",
+                },
+                {
+                    "figure": f"ingest ceiling: cores={os.cpu_count()} / (worker + writer CPU)",
+                    "value": ceiling,
+                    "unit": "spectra/s",
                 },
                 {
                     "figure": f"ingest {n}: lines found per spectrum",
