@@ -13,6 +13,7 @@ detector of a known shape in white noise (common practice; e.g. Turin 1960, IRE 
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -81,7 +82,9 @@ def _plan(n: int, sigmas: tuple[float, ...]) -> _Plan:
     for d in np.unique(decims[broad]):
         idx = np.flatnonzero(decims == d)
         keep = (nfft // int(d)) // 2 + 1
-        trans = np.exp(-2.0 * np.pi**2 * sig[idx, None] ** 2 * f[None, :keep] ** 2)
+        # complex, as numpy would cast it for each product with the spectrum (the same values)
+        trans = np.exp(-2.0 * np.pi**2 * sig[idx, None] ** 2 * f[None, :keep] ** 2) + 0j
+        trans.flags.writeable = False
         full = np.exp(-4.0 * np.pi**2 * sig[idx, None] ** 2 * f[None, :] ** 2)
         nyq = full[:, -1] if nfft % 2 == 0 else np.zeros(idx.size)
         norm2 = (2.0 * full.sum(axis=1) - full[:, 0] - nyq) / nfft
@@ -135,20 +138,20 @@ def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarr
     z = np.empty(int(starts[-1] + sizes[-1] + 1))
     z[starts + sizes] = 0.0  # the separators; every scale is written below
     corr = correlation_factor(rho, sigmas)
+    # each filtered spectrum is divided by its noise straight into its place in the bank
     if plan.taps:
-        noise = np.array([rms * np.sqrt(norm2 * corr[j]) for j, _, norm2 in plan.taps])
         narrow = plan.folded @ _pair_sums(resid, plan.folded.shape[1] - 1)
-        narrow /= noise[:, None]
-        for row, (j, _, _) in enumerate(plan.taps):
-            z[starts[j] : starts[j] + n] = narrow[row]
+        for row, (j, _, norm2) in enumerate(plan.taps):
+            noise = rms * math.sqrt(norm2 * corr[j])
+            np.divide(narrow[row], noise, out=z[starts[j] : starts[j] + n])
     if plan.parts:
         spec = scipy.fft.rfft(resid, plan.nfft)  # (SciPy keeps its plans)
         for d, idx, trans, norms in plan.parts:
-            m = plan.nfft // d
-            filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, m, axis=-1)
-            filtered /= (d * rms * np.sqrt(norms * corr[idx]))[:, None]
-            for row, j in enumerate(idx):
-                z[starts[j] : starts[j] + sizes[j]] = filtered[row, : sizes[j]]
+            filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, plan.nfft // d, axis=-1)
+            noise_b = d * rms * np.sqrt(norms * corr[idx])
+            for row, j in enumerate(idx.tolist()):
+                out = z[starts[j] : starts[j] + sizes[j]]
+                np.divide(filtered[row, : sizes[j]], noise_b[row], out=out)
     return Bank(z, starts, sizes, decim)
 
 
@@ -249,18 +252,27 @@ def _peaks(u: np.ndarray, threshold: float) -> tuple[np.ndarray, np.ndarray]:
     if above.size == 0:
         return above, np.empty(0)
     last = u.size - 1
-    left = np.where(above > 0, u[np.maximum(above - 1, 0)], -np.inf)
-    right = np.where(above < last, u[np.minimum(above + 1, last)], -np.inf)
+    # neighbours of each channel above the threshold, -inf beyond the ends (only the first
+    # and the last of them can be at an end: they are in ascending order)
+    left = u[above - 1]
+    right = u[np.minimum(above + 1, last)]
+    if above[0] == 0:
+        left[0] = -np.inf
+    if above[-1] == last:
+        right[-1] = -np.inf
     here = u[above]
-    top = above[(here >= left) & (here > right)]
-    lo = u[np.maximum(top - 1, 0)]
-    hi = u[np.minimum(top + 1, u.size - 1)]
-    mid = u[top]
+    is_top = (here >= left) & (here > right)
+    top = above[is_top]
+    lo, mid, hi = left[is_top], here[is_top], right[is_top]
     denom = lo - 2.0 * mid + hi
     with np.errstate(divide="ignore", invalid="ignore"):
         shift = np.where(denom < 0, 0.5 * (lo - hi) / denom, 0.0)
-    edge = (top == 0) | (top == u.size - 1)
-    return top, np.where(edge, 0.0, np.clip(shift, -0.5, 0.5))
+    shift = np.minimum(np.maximum(shift, -0.5), 0.5)
+    if top.size and top[0] == 0:  # no offset at the ends
+        shift[0] = 0.0
+    if top.size and top[-1] == last:
+        shift[-1] = 0.0
+    return top, shift
 
 
 def find_seeds(
@@ -295,22 +307,25 @@ def find_seeds(
     v_all = np.abs(flat_z[top])
     s_all = np.sign(flat_z[top])
     w_all = sigmas[j_all]
-    corr = correlation_factor(rho, sigmas)
+    corr = correlation_factor(rho, sigmas).tolist()
+    w2_all = w_all**2
+    positive = s_all > 0  # (every peak is above a positive threshold: the sign is +-1)
     seeds: list[Seed] = []
     score = v_all.copy()
     while len(seeds) < limit:
         k = int(np.argmax(score))
-        if not np.isfinite(score[k]):
+        if not math.isfinite(score[k]):
             break
-        j, w = int(j_all[k]), float(w_all[k])
-        s = _refined_sigma(bank, sigmas, j, float(p_all[k]), float(s_all[k]))
+        j, w, v = int(j_all[k]), float(w_all[k]), float(v_all[k])
+        pos, sign = float(p_all[k]), float(s_all[k])
+        s = _refined_sigma(bank, sigmas, j, pos, sign)
         # response of a peak-1 kernel of sigma w to a line of peak A and sigma s:
         # A sqrt(2 pi) s w / sqrt(s^2 + w^2); its noise: rms sqrt(sqrt(pi) w x corr)
-        filtered = s_all[k] * v_all[k] * rms * np.sqrt(corr[j] * w * np.sqrt(np.pi))
-        amp = filtered * np.sqrt(s * s + w * w) / (np.sqrt(2.0 * np.pi) * s * w)
-        seeds.append(Seed(float(p_all[k]), s, float(amp), float(v_all[k])))
-        near = np.abs(p_all - p_all[k]) < reach * np.sqrt(s**2 + w_all**2)
-        score[near & (s_all == s_all[k])] = -np.inf
+        filtered = sign * v * rms * math.sqrt(corr[j] * w * math.sqrt(math.pi))
+        amp = filtered * math.sqrt(s * s + w * w) / (math.sqrt(2.0 * math.pi) * s * w)
+        seeds.append(Seed(pos, s, amp, v))
+        near = np.abs(p_all - pos) < reach * np.sqrt(s**2 + w2_all)
+        score[near & (positive if sign > 0 else ~positive)] = -np.inf
         score[k] = -np.inf
     return seeds
 

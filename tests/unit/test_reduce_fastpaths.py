@@ -13,7 +13,7 @@ import scipy.ndimage
 
 from speccat.reduce import lines, measure
 from speccat.reduce.baseline import FEW_INTERVALS, dilate_runs, runs
-from speccat.reduce.detect import _pair_sums, _plan, kernel_sigmas
+from speccat.reduce.detect import _pair_sums, _peaks, _plan, kernel_sigmas
 from speccat.reduce.noise import median
 
 
@@ -81,3 +81,31 @@ def test_lone_lines_are_measured_as_through_the_full_model(
     assert len(fast.lines) == len(slow.lines) >= 2
     for a, b in zip(fast.lines, slow.lines, strict=True):
         assert a == b
+
+
+def _brute_peaks(u: np.ndarray, threshold: float) -> tuple[list[int], list[float]]:
+    top, shift = [], []
+    for i, here in enumerate(u.tolist()):
+        left = u[i - 1] if i > 0 else -np.inf
+        right = u[i + 1] if i < u.size - 1 else -np.inf
+        if here > threshold and here >= left and here > right:
+            top.append(i)
+            denom = left - 2.0 * here + right
+            edge = i in (0, u.size - 1)
+            offset = 0.5 * (left - right) / denom if denom < 0 and not edge else 0.0
+            shift.append(min(max(offset, -0.5), 0.5))
+    return top, shift
+
+
+@pytest.mark.parametrize("ends", [False, True])
+def test_peak_search_equals_a_channel_by_channel_search(
+    rng: np.random.Generator, ends: bool
+) -> None:
+    u = np.abs(rng.normal(0.0, 1.0, 3000))
+    u[1000:1003] = 2.5  # a plateau: its first channel is the peak
+    u[0], u[-1] = (9.0, 8.0) if ends else (0.0, 0.0)  # peaks on both ends: no offset there
+    top, shift = _peaks(u, 1.5)
+    want_top, want_shift = _brute_peaks(u, 1.5)
+    assert top.tolist() == want_top and len(want_top) > 20
+    assert shift.tolist() == want_shift
+    assert (0 in want_top) == ends and (u.size - 1 in want_top) == ends
