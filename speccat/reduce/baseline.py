@@ -357,7 +357,8 @@ def fit_baseline(
         new_period = period
         search = it == 0 or (it == 1 and start is None and (period > 0 or changed_before))
         if ripple and search:
-            found = find_ripple(y - fit.poly, new_good, sigma, ripple_false_alarm)
+            left = resid if fit.total is fit.poly else y - fit.poly  # (no ripple: the same)
+            found = find_ripple(left, new_good, sigma, ripple_false_alarm)
             same = bool(found and period and abs(found - period) < 0.02 * period)
             if found and not same:
                 found = refine_period(y, new_good, max_order, fixed_order, found)

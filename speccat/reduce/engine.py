@@ -6,6 +6,7 @@ Component parameter rows are [A, c, ln s] (Gaussian: peak, centre, sigma; channe
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, replace
 
@@ -63,7 +64,9 @@ def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
     breaks = np.flatnonzero(lo[1:] >= reach[:-1]) + 1
     out: list[np.ndarray] = []
     strength = np.abs(params[:, 0]) * np.exp(np.minimum(np.maximum(params[:, 2], -30), 30))
-    for chunk in np.split(order, breaks):
+    bounds = [0, *breaks.tolist(), order.size]
+    for a, b in itertools.pairwise(bounds):
+        chunk = order[a:b]
         if chunk.size > max_components:  # keep the strongest; the rest is dropped
             chunk = np.sort(chunk[np.argsort(-strength[chunk])[:max_components]])
         out.append(chunk)
@@ -129,7 +132,8 @@ def _fit_all(
         if near.any():
             y = y - model(x, params[near], s.profile)
         fit = _simplest(x, y, p0, noise, s.detect_sigma)
-        if np.isfinite(fit.params).all() and np.isfinite(fit.cov).all():
+        # (a successful fit has a finite covariance; _simplest may still void its params)
+        if np.isfinite(fit.params).all() and (fit.success or np.isfinite(fit.cov).all()):
             groups.append(Group(fit.params, fit, lo, hi))
     return groups
 
@@ -154,7 +158,7 @@ def _simplest(
     profile = "gaussian" if p0.shape[1] == 3 else "voigt"
     fit = fit_components(x, y, p0, profile, maxfev=TRIAL_FEV)
     span = float(x[-1] - x[0]) if x.size > 1 else 1.0
-    top = float(np.max(np.abs(y))) if y.size else 0.0
+    top = float(np.abs(y).max()) if y.size else 0.0
 
     def absurd(p: np.ndarray) -> np.ndarray:
         wid = reach_sigma(np.where(np.isfinite(p), p, 0.0))

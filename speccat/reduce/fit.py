@@ -98,6 +98,10 @@ def model(x: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
     if params.size == 0:
         return np.zeros_like(x, dtype=float)
     if profile == "gaussian":
+        if params.shape[0] == 1:  # the common case without 2-d arrays: the same values
+            amp, cen, ln_s = params[0].tolist()
+            t = (x - cen) / np.exp(min(max(ln_s, -12.0), 30.0))
+            return np.asarray(amp * np.exp(-0.5 * t * t))
         return np.asarray(_gauss_parts(x, params)[1].sum(axis=0))
     _, w = _voigt_parts(x, params)
     sig = np.exp(np.minimum(np.maximum(params[:, 2:3], -12), 30))
@@ -301,7 +305,7 @@ def _fit_one_gaussian(x: np.ndarray, y: np.ndarray, p0: list[float], maxfev: int
     amp0, cen0, ln_s0 = p0
     x0 = 0.5 * float(x[0] + x[-1])
     sign = 1.0 if amp0 >= 0.0 else -1.0
-    tiny = 1e-12 * max(float(np.max(np.abs(y))), 1e-300)
+    tiny = 1e-12 * max(float(np.abs(y).max()), 1e-300)
     start = np.array([math.log(max(abs(amp0), tiny)), cen0 - x0, ln_s0])
     calls = [0]
     one = _OneGaussian(x - x0, y, sign, calls)

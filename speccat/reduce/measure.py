@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -35,7 +36,7 @@ def _validate(freq_hz: np.ndarray, intensity: np.ndarray) -> tuple[np.ndarray, n
         )
     if freq.size < MIN_CHANNELS:
         raise ReduceError(f"reduce: {freq.size} channels; at least {MIN_CHANNELS} are needed")
-    if not np.all(np.isfinite(freq)) or np.any(np.diff(freq) <= 0):
+    if not np.isfinite(freq).all() or (freq[1:] <= freq[:-1]).any():
         raise ReduceError("reduce: frequencies must be finite and strictly ascending")
     if np.count_nonzero(np.isfinite(y)) < MIN_CHANNELS:
         raise ReduceError(f"reduce: fewer than {MIN_CHANNELS} finite intensity values")
@@ -71,8 +72,10 @@ def _baseline(
     line_mask: np.ndarray,
     s: ReduceSettings,
     start: tuple[np.ndarray, float] | None,
+    floor: float,
 ) -> tuple[BaselineFit, np.ndarray, Noise, np.ndarray]:
-    """The baseline, the channels it was fitted on, the noise, and ``y`` minus the baseline."""
+    """The baseline, the channels it was fitted on, the noise (at least ``floor``), and ``y``
+    minus the baseline."""
     base, good = fit_baseline(
         y,
         valid,
@@ -91,8 +94,7 @@ def _baseline(
     free = valid & ~line_mask
     quiet = free & ~long_runs(free & ~good, 4)
     rms = robust_rms(resid[quiet] if np.count_nonzero(quiet) > 8 else resid[good], finite=True)
-    floor = 1e-9 * max(float(np.max(np.abs(y[valid]))), 1e-300)
-    rms = rms if np.isfinite(rms) and rms > floor else floor
+    rms = rms if math.isfinite(rms) and rms > floor else floor
     return base, good, Noise(rms, autocorrelation(resid, good)), resid
 
 
@@ -145,7 +147,9 @@ def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) ->
         flags.append("clipped")
 
     line_mask = np.zeros(n, dtype=bool)
-    base, good, noise, resid = _baseline(yv, valid, line_mask, s, None)
+    top = np.abs(yv).max() if valid.all() else np.abs(yv[valid]).max()
+    floor = 1e-9 * max(float(top), 1e-300)  # the least rms: for (nearly) noise-free data
+    base, good, noise, resid = _baseline(yv, valid, line_mask, s, None, floor)
     sigmas = kernel_sigmas(n, s.min_kernel_fwhm_chan, s.max_kernel_fraction, s.ladder_step)
     params, groups = detect_and_fit(
         resid, valid, noise, sigmas, s, np.zeros((0, 3 if s.profile == "gaussian" else 4))
@@ -157,7 +161,7 @@ def _measure(freq: np.ndarray, y: np.ndarray, s: ReduceSettings, stokes: str) ->
         if _leak(params, line_mask & good, len(base.coeffs), s.profile) < 0.05 * noise.rms:
             break  # the clipping already kept (nearly) all line flux out of the baseline
         new_base, good, new_noise, resid = _baseline(
-            yv, valid, line_mask, s, (good, base.ripple_period_chan)
+            yv, valid, line_mask, s, (good, base.ripple_period_chan), floor
         )
         shift = np.max(np.abs(new_base.total - base.total)[valid])
         base, noise = new_base, new_noise

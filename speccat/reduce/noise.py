@@ -68,9 +68,7 @@ def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG)
     A value is kept only when it exceeds 3/sqrt(pairs) in size, so white noise gives exactly
     zero and its errors are not inflated by chance correlation.
     """
-    r = resid.copy()
-    np.copyto(r, 0.0, where=~good)
-    w = good.astype(float)
+    r = np.where(good, resid, 0.0)
     var = float(np.dot(r, r))
     npts = float(np.count_nonzero(good))
     rho = np.zeros(max_lag)
@@ -78,7 +76,7 @@ def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG)
         return rho
     var /= npts
     for lag in range(1, max_lag + 1):
-        pairs = float(np.dot(w[lag:], w[:-lag]))
+        pairs = float(np.count_nonzero(good[lag:] & good[:-lag]))
         if pairs < 10:
             break
         value = float(np.dot(r[lag:], r[:-lag])) / pairs / var

@@ -14,6 +14,7 @@ import scipy.ndimage
 from speccat.reduce import lines, measure
 from speccat.reduce.baseline import FEW_INTERVALS, dilate_runs, runs
 from speccat.reduce.detect import _pair_sums, _peaks, _plan, kernel_sigmas
+from speccat.reduce.fit import _gauss_parts, model
 from speccat.reduce.noise import median
 
 
@@ -109,3 +110,13 @@ def test_peak_search_equals_a_channel_by_channel_search(
     assert top.tolist() == want_top and len(want_top) > 20
     assert shift.tolist() == want_shift
     assert (0 in want_top) == ends and (u.size - 1 in want_top) == ends
+
+
+def test_one_gaussian_model_equals_the_general_evaluation(rng: np.random.Generator) -> None:
+    x = np.arange(-50.0, 250.0)
+    for row in ([3.0, 100.4, 1.7], [-2.5, 10.0, -20.0], [1e-3, 260.0, 40.0]):  # ln s clamped
+        p = np.array([row])
+        general = _gauss_parts(x, p)[1].sum(axis=0)
+        assert np.array_equal(model(x, p, "gaussian"), general)
+    p = rng.normal(0.0, 1.0, (1, 3)) + np.array([0.0, 100.0, 2.0])
+    assert np.array_equal(model(x, p, "gaussian"), _gauss_parts(x, p)[1].sum(axis=0))
