@@ -39,7 +39,7 @@ def runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Start and end (exclusive) channels of every run of True in ``mask``."""
     padded = np.zeros(mask.size + 2, dtype=bool)
     padded[1:-1] = mask
-    edges = np.flatnonzero(padded[1:] != padded[:-1])  # alternately a start and an end
+    edges = (padded[1:] != padded[:-1]).nonzero()[0]  # alternately a start and an end
     return edges[::2], edges[1::2]
 
 
@@ -147,7 +147,7 @@ def fit_linear(
     top = max(0, min(top, m - n_rip - 2))
     design = _design(n, top, period)
     if period <= 0:  # cached Gram matrix minus the few excluded rows
-        bad = np.flatnonzero(~good)
+        bad = (~good).nonzero()[0]
         a_bad = design[bad]
         gram = _gram(n, top) - a_bad.T @ a_bad
         if sums is None:
@@ -229,7 +229,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     power = (part.real**2 + part.imag**2) / (m * sigma**2)
     level = math.log(max(float(inner.size), 1.0) / false_alarm)
     at = power[1:-1]
-    peaks = np.flatnonzero((at >= level) & (at >= power[:-2]) & (at >= power[2:])) + 1
+    peaks = ((at >= level) & (at >= power[:-2]) & (at >= power[2:])).nonzero()[0] + 1
     for at_peak in peaks[np.argsort(-power[peaks])][:4]:  # strongest first; a few candidates
         best = first + int(at_peak)
         lo, mid, hi = np.log(power[at_peak - 1 : at_peak + 2] + 1e-300)

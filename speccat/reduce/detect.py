@@ -132,7 +132,7 @@ def _layout(n: int, sigmas: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray, 
 def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarray) -> Bank:
     """S/N spectra of ``resid`` (one per kernel, decimated): filtered / its own sigma."""
     n = resid.size
-    key = tuple(float(s) for s in sigmas)
+    key = tuple(sigmas.tolist())
     plan = _plan(n, key)
     starts, sizes, decim = _layout(n, key)
     z = np.empty(int(starts[-1] + sizes[-1] + 1))
@@ -199,7 +199,7 @@ def shift_bank(
     moves ``bank`` itself (its array is changed) instead of a copy.
     """
     n = valid.size
-    key = tuple(float(s) for s in sigmas)
+    key = tuple(sigmas.tolist())
     plan = _plan(n, key)
     rows = np.concatenate((remove, restore))
     if rows.shape[0] == 0:
@@ -248,7 +248,7 @@ def shift_bank(
 
 def _peaks(u: np.ndarray, threshold: float) -> tuple[np.ndarray, np.ndarray]:
     """Indices of local maxima of ``u`` above ``threshold`` and their parabolic offsets."""
-    above = np.flatnonzero(u > threshold)
+    above = (u > threshold).nonzero()[0]
     if above.size == 0:
         return above, np.empty(0)
     last = u.size - 1

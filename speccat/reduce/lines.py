@@ -33,7 +33,7 @@ def assemble(
 ) -> list[LineFit]:
     """One ``LineFit`` per fitted component, in frequency order; blend index in that order."""
     dfdc = channel_widths(freq)
-    groups = sorted(groups, key=lambda g: float(np.min(g.params[:, 1])))
+    groups = sorted(groups, key=lambda g: float(g.params[:, 1].min()))
     everything = np.concatenate([g.params for g in groups]) if groups else np.zeros((0, 3))
     profile = s.profile
     data = resid if valid.all() else np.where(valid, resid, np.nan)  # read only
@@ -109,8 +109,8 @@ def full_model(n: int, params: np.ndarray, profile: str) -> np.ndarray:
         return model(np.arange(n, dtype=float), params, profile)
     out = np.zeros(n)
     sig = np.exp(np.minimum(np.maximum(params[:, 2], -12.0), 30.0))
-    los = np.clip(np.floor(params[:, 1] - 12.0 * sig), 0, n).astype(int)
-    his = np.clip(np.ceil(params[:, 1] + 12.0 * sig) + 1, 0, n).astype(int)
+    los = np.minimum(np.maximum(np.floor(params[:, 1] - 12.0 * sig), 0), n).astype(int)
+    his = np.minimum(np.maximum(np.ceil(params[:, 1] + 12.0 * sig) + 1, 0), n).astype(int)
     for p, lo, hi in zip(params, los, his, strict=True):
         if hi > lo:
             out[lo:hi] += model(np.arange(lo, hi, dtype=float), p[None, :], profile)
@@ -124,8 +124,9 @@ def _alone(groups: list[Group], everything: np.ndarray, n: int, profile: str) ->
     out: dict[int, bool] = {}
     if profile == "gaussian" and everything.shape[0]:
         sig = np.exp(np.minimum(np.maximum(everything[:, 2], -12.0), 30.0))
-        los = np.clip(np.floor(everything[:, 1] - 12.0 * sig), 0, n).astype(int).tolist()
-        his = np.clip(np.ceil(everything[:, 1] + 12.0 * sig) + 1, 0, n).astype(int).tolist()
+        lo = np.minimum(np.maximum(np.floor(everything[:, 1] - 12.0 * sig), 0), n)
+        hi = np.minimum(np.maximum(np.ceil(everything[:, 1] + 12.0 * sig) + 1, 0), n)
+        los, his = lo.astype(int).tolist(), hi.astype(int).tolist()
     row = 0
     for g in groups:
         k = g.params.shape[0]
@@ -335,14 +336,14 @@ def _linefit(
     weight = dfdc[lo:hi]
     ok = np.isfinite(seg)
     if ok.all():
-        total = float(np.sum(seg * weight))
+        total = float((seg * weight).sum())
         count = seg.size
     else:
         weight = weight[ok]
-        total = float(np.sum(seg[ok] * weight))
+        total = float((seg[ok] * weight).sum())
         count = int(np.count_nonzero(ok))
     box = box_correlation_factor(noise.rho, count) if correlated else 1.0
-    total_err = noise.rms * math.sqrt(float(np.sum(weight**2)) * box)
+    total_err = noise.rms * math.sqrt(float((weight**2).sum()) * box)
     sign = 1.0 if comp.peak >= 0 else -1.0
     m1, m2 = moments(freq[lo:hi], sign * seg)
     lorentz = comp.lorentz_fwhm

@@ -54,7 +54,7 @@ def saturated(y: np.ndarray, valid: np.ndarray, min_run: int = 3) -> np.ndarray:
     if n_valid == 0:
         return out
     values = y if n_valid == y.size else y[valid]
-    for level in (np.max(values), np.min(values)):
+    for level in (values.max(), values.min()):
         at = y == level
         if n_valid < y.size:
             at &= valid
@@ -108,10 +108,10 @@ def _line_mask(params: np.ndarray, n: int, dilate_fwhm: float) -> np.ndarray:
 def _leak(params: np.ndarray, fresh: np.ndarray, n_coeffs: int, profile: str) -> float:
     """Rough bound on the baseline shift caused by line flux on channels it was fitted to:
     (number of coefficients) x sum |line model| over those channels / number of channels."""
-    idx = np.flatnonzero(fresh)
+    idx = fresh.nonzero()[0]
     if idx.size == 0:
         return 0.0
-    flux = float(np.sum(np.abs(model(idx.astype(float), params, profile))))
+    flux = float(np.abs(model(idx.astype(float), params, profile)).sum())
     return (n_coeffs + 2) * flux / fresh.size
 
 

@@ -37,7 +37,7 @@ def peak_fraction_widths(
 
 
 def _crossings(y: np.ndarray, v: np.ndarray, level: float) -> float:
-    above = np.flatnonzero(v >= level)
+    above = (v >= level).nonzero()[0]
     lo, hi = int(above[0]), int(above[-1])
     left = float(lo)
     if lo > 0 and np.isfinite(y[lo - 1]):
@@ -66,6 +66,6 @@ def moments(freq: np.ndarray, y: np.ndarray) -> tuple[float | None, float | None
     total = float(w.sum())
     if total <= 0:
         return None, None
-    mean = float(np.sum(w * f) / total)
-    var = float(np.sum(w * (f - mean) ** 2) / total)
+    mean = float((w * f).sum() / total)
+    var = float((w * (f - mean) ** 2).sum() / total)
     return mean, (float(np.sqrt(var)) if var > 0 else None)
