@@ -53,14 +53,6 @@ def long_runs(mask: np.ndarray, min_len: int) -> np.ndarray:
 def dilate_runs(mask: np.ndarray, factor: float = 1.0, minimum: int = 1) -> np.ndarray:
     """Grow every run of True by ``factor`` times its own length (at least ``minimum``) per side."""
     starts, ends = runs(mask)
-    if starts.size == 0:
-        return mask.copy()
-    if starts.size <= FEW_INTERVALS:  # the common case: a slice each, in integers
-        out = np.zeros(mask.size, dtype=bool)
-        for a, b in zip(starts.tolist(), ends.tolist(), strict=True):
-            grow = max(math.ceil((b - a) * factor), minimum)
-            out[max(a - grow, 0) : b + grow] = True
-        return out
     grow = np.maximum(np.ceil((ends - starts) * factor), minimum).astype(np.int64)
     return intervals_mask(mask.size, starts - grow, ends + grow)
 

@@ -147,7 +147,8 @@ def filter_bank(resid: np.ndarray, sigmas: np.ndarray, rms: float, rho: np.ndarr
     if plan.parts:
         spec = scipy.fft.rfft(resid, plan.nfft)  # (SciPy keeps its plans)
         for d, idx, trans, norms in plan.parts:
-            filtered = np.fft.irfft(spec[None, : trans.shape[1]] * trans, plan.nfft // d, axis=-1)
+            product = spec[None, : trans.shape[1]] * trans
+            filtered = scipy.fft.irfft(product, plan.nfft // d, axis=-1)  # (plans kept)
             noise_b = d * rms * np.sqrt(norms * corr[idx])
             for row, j in enumerate(idx.tolist()):
                 out = z[starts[j] : starts[j] + sizes[j]]
