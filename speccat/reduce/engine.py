@@ -347,6 +347,8 @@ def detect_and_fit(
 def _left(base: np.ndarray, valid: np.ndarray, params: np.ndarray, profile: str) -> np.ndarray:
     """``base`` minus each component on the valid channels: a Gaussian within +/- 8 sigma
     (``SHIFT_REACH``, as ``shift_bank`` assumes), a Voigt over its fit window."""
+    if params.shape[0] == 0:
+        return base
     n = base.size
     left = base.copy()
     for p in params:

@@ -210,12 +210,15 @@ class _OneGaussian:
     """Residual and column Jacobian of one Gaussian in [ln |A|, c, ln s] (sign fixed): the
     hot path of the reduction, a handful of numpy calls per evaluation. The last evaluation
     is kept, so the Jacobian at a point just evaluated (and a repeated point) costs no exp.
-    The arrays are filled in place (MINPACK copies what it is handed)."""
+    The arrays are filled in place and handed out as they are (MINPACK copies what it is
+    handed): the Jacobian's first row is the model itself."""
 
     def __init__(self, xs: np.ndarray, y: np.ndarray, sign: float, calls: list[int]) -> None:
         self.xs, self.y, self.sign, self.calls = xs, y, sign, calls
         self.key: tuple[float, ...] = ()
-        self.f, self.t, self.r = np.empty(xs.size), np.empty(xs.size), np.empty(xs.size)
+        self.jm = np.empty((3, xs.size))
+        self.f, self.d_cen, self.d_ln_s = self.jm  # d/d ln|A| = A g is the model
+        self.t, self.r = np.empty(xs.size), np.empty(xs.size)
         self.s1 = 1.0
 
     def _at(self, flat: np.ndarray) -> None:
@@ -241,12 +244,10 @@ class _OneGaussian:
 
     def jac(self, flat: np.ndarray) -> np.ndarray:
         self._at(flat)
-        out = np.empty((3, self.xs.size))
-        out[0] = self.f  # d/d ln|A| = A g
-        np.multiply(self.f, self.t, out=out[2])
-        np.multiply(out[2], 1.0 / self.s1, out=out[1])
-        out[2] *= self.t
-        return out
+        np.multiply(self.f, self.t, out=self.d_ln_s)
+        np.multiply(self.d_ln_s, 1.0 / self.s1, out=self.d_cen)
+        self.d_ln_s *= self.t
+        return self.jm
 
 
 def fit_components(
@@ -314,7 +315,7 @@ def _fit_one_gaussian(x: np.ndarray, y: np.ndarray, p0: list[float], maxfev: int
         r = one.resid(sol_log)
         ln_a, cen, ln_s = sol_log.tolist()
         amp = sign * math.exp(min(ln_a, 700.0))
-        jm = one.jac(sol_log)  # a new array
+        jm = one.jac(sol_log).copy()  # (``one`` keeps its own)
         jm[0] /= amp if amp != 0 else 1.0  # d/dA = (d/d ln|A|) / A
         rss = float(np.dot(r, r))
         dof = max(x.size - 3, 1)
