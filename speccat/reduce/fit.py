@@ -415,13 +415,13 @@ def _gaussian_component(p: np.ndarray, cov: np.ndarray) -> Component:
     var_area = float(grad_area @ cov @ grad_area)
     return Component(
         peak=amp,
-        peak_err=float(np.sqrt(max(cov[0, 0], 0.0))),
+        peak_err=math.sqrt(max(float(cov[0, 0]), 0.0)),
         center=cen,
-        center_err=float(np.sqrt(max(cov[1, 1], 0.0))),
+        center_err=math.sqrt(max(float(cov[1, 1]), 0.0)),
         fwhm=FWHM_PER_SIGMA * s,
-        fwhm_err=FWHM_PER_SIGMA * s * float(np.sqrt(max(cov[2, 2], 0.0))),
+        fwhm_err=FWHM_PER_SIGMA * s * math.sqrt(max(float(cov[2, 2]), 0.0)),
         area=area,
-        area_err=float(np.sqrt(max(var_area, 0.0))),
+        area_err=math.sqrt(max(var_area, 0.0)),
         sigma=s,
     )
 

@@ -9,6 +9,8 @@ dispersion over the window (common practice).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 
@@ -40,10 +42,10 @@ def _crossings(y: np.ndarray, v: np.ndarray, level: float) -> float:
     above = (v >= level).nonzero()[0]
     lo, hi = int(above[0]), int(above[-1])
     left = float(lo)
-    if lo > 0 and np.isfinite(y[lo - 1]):
+    if lo > 0 and math.isfinite(y[lo - 1]):
         left = lo - (v[lo] - level) / (v[lo] - y[lo - 1])
     right = float(hi)
-    if hi < y.size - 1 and np.isfinite(y[hi + 1]):
+    if hi < y.size - 1 and math.isfinite(y[hi + 1]):
         right = hi + (v[hi] - level) / (v[hi] - y[hi + 1])
     return float(right - left)
 
@@ -68,4 +70,4 @@ def moments(freq: np.ndarray, y: np.ndarray) -> tuple[float | None, float | None
         return None, None
     mean = float((w * f).sum() / total)
     var = float((w * (f - mean) ** 2).sum() / total)
-    return mean, (float(np.sqrt(var)) if var > 0 else None)
+    return mean, (math.sqrt(var) if var > 0 else None)
