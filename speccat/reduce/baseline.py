@@ -209,7 +209,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     m = int(np.count_nonzero(good))
     if m < 32 or not np.isfinite(sigma) or sigma <= 0:
         return 0.0
-    r = resid - np.mean(resid[good])
+    r = resid - float(resid[good].sum()) / m  # (the mean, as np.mean forms it)
     np.copyto(r, 0.0, where=~good)
     nfft, inner = _ripple_grid(n)
     if inner.size == 0:

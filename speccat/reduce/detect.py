@@ -34,11 +34,15 @@ class Seed:
     z: float
 
 
+@functools.lru_cache(maxsize=16)
 def kernel_sigmas(n: int, min_fwhm_chan: float, max_fraction: float, step: float) -> np.ndarray:
-    """Kernel sigmas (channels): FWHM from ``min_fwhm_chan`` up to ``max_fraction`` of the band."""
+    """Kernel sigmas (channels): FWHM from ``min_fwhm_chan`` up to ``max_fraction`` of the band
+    (cached; read-only)."""
     top = max(max_fraction * n, min_fwhm_chan)
     count = int(np.floor(np.log(top / min_fwhm_chan) / np.log(step))) + 1
-    return min_fwhm_chan * step ** np.arange(count) / FWHM_PER_SIGMA
+    out = min_fwhm_chan * step ** np.arange(count) / FWHM_PER_SIGMA
+    out.flags.writeable = False
+    return out
 
 
 def _decimation(sigma: float) -> int:

@@ -8,6 +8,8 @@ filter over several channels as sum_ij k_i k_j rho(i-j).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 MAD_TO_SIGMA = 1.482602218505602
@@ -80,7 +82,7 @@ def autocorrelation(resid: np.ndarray, good: np.ndarray, max_lag: int = MAX_LAG)
         if pairs < 10:
             break
         value = float(np.dot(r[lag:], r[:-lag])) / pairs / var
-        if abs(value) > 3.0 / np.sqrt(pairs):
+        if abs(value) > 3.0 / math.sqrt(pairs):
             rho[lag - 1] = value
     return rho
 
