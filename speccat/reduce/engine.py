@@ -57,17 +57,17 @@ def group_rows(params: np.ndarray, max_components: int) -> list[np.ndarray]:
     """
     if params.shape[0] == 0:
         return []
-    order = np.argsort(params[:, 1])
+    order = params[:, 1].argsort()
     cen, sig = params[order, 1], reach_sigma(params[order])
     lo, hi = cen - 3.0 * sig, cen + 3.0 * sig
     reach = np.maximum.accumulate(hi)
-    breaks = np.flatnonzero(lo[1:] >= reach[:-1]) + 1
+    breaks = (lo[1:] >= reach[:-1]).nonzero()[0] + 1
     out: list[np.ndarray] = []
-    strength = np.abs(params[:, 0]) * np.exp(np.minimum(np.maximum(params[:, 2], -30), 30))
     bounds = [0, *breaks.tolist(), order.size]
     for a, b in itertools.pairwise(bounds):
         chunk = order[a:b]
         if chunk.size > max_components:  # keep the strongest; the rest is dropped
+            strength = np.abs(params[:, 0]) * np.exp(np.minimum(np.maximum(params[:, 2], -30), 30))
             chunk = np.sort(chunk[np.argsort(-strength[chunk])[:max_components]])
         out.append(chunk)
     return out
@@ -99,7 +99,7 @@ def model_snr(params: np.ndarray, noise: Noise, n: int, profile: str) -> np.ndar
     for i, p in enumerate(params):
         lo, hi = window(p[None, :], n)
         m = model(np.arange(lo, hi, dtype=float), p[None, :], profile)
-        out[i] = np.sqrt(np.dot(m, m) / cf[i]) / noise.rms
+        out[i] = math.sqrt(np.dot(m, m) / cf[i]) / noise.rms
     return out
 
 
@@ -270,7 +270,7 @@ def _keep(
 ) -> np.ndarray:
     if params.shape[0] == 0:
         return np.zeros(0, dtype=bool)
-    finite = np.all(np.isfinite(params), axis=1)
+    finite = np.isfinite(params).all(axis=1)
     safe = np.where(finite[:, None], params, 0.0)
     sig = reach_sigma(safe)
     inside = (safe[:, 1] > -0.5) & (safe[:, 1] < n - 0.5) & (sig < 0.5 * n) & (sig > 0.05)
