@@ -222,7 +222,7 @@ def find_ripple(resid: np.ndarray, good: np.ndarray, sigma: float, false_alarm: 
     level = math.log(max(float(inner.size), 1.0) / false_alarm)
     at = power[1:-1]
     peaks = ((at >= level) & (at >= power[:-2]) & (at >= power[2:])).nonzero()[0] + 1
-    for at_peak in peaks[np.argsort(-power[peaks])][:4]:  # strongest first; a few candidates
+    for at_peak in peaks[(-power[peaks]).argsort()][:4]:  # strongest first; a few candidates
         best = first + int(at_peak)
         lo, mid, hi = np.log(power[at_peak - 1 : at_peak + 2] + 1e-300)
         denom = lo - 2 * mid + hi
@@ -340,7 +340,9 @@ def fit_baseline(
     for it in range(max_iter):
         resid = y - fit.total
         sigma = robust_rms(resid[good], finite=True)
-        clipped = valid & (np.abs(resid) > clip_sigma * sigma)
+        clipped = np.abs(resid) > clip_sigma * sigma
+        if n_valid < y.size:
+            clipped &= valid
         new_good = free & ~dilate_runs(clipped)
         if np.count_nonzero(new_good) < least:  # dilation took too much: undilated
             new_good = free & ~clipped
