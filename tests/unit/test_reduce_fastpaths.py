@@ -103,7 +103,7 @@ def test_peak_search_equals_a_channel_by_channel_search(
     rng: np.random.Generator, ends: bool
 ) -> None:
     u = np.abs(rng.normal(0.0, 1.0, 3000))
-    u[1000:1003] = 2.5  # a plateau: its first channel is the peak
+    u[1000:1003] = 2.5  # a plateau: its last channel is the peak (>= left, > right)
     u[0], u[-1] = (9.0, 8.0) if ends else (0.0, 0.0)  # peaks on both ends: no offset there
     top, shift = _peaks(u, 1.5)
     want_top, want_shift = _brute_peaks(u, 1.5)
